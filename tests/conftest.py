@@ -1,0 +1,35 @@
+"""Test-wide settings: float64, no writes under HOME, opt-in slow suites."""
+
+import os
+import tempfile
+
+_TMP = tempfile.mkdtemp(prefix="halo-tests-")
+# keep library caches out of HOME (matplotlib, astropy, colossus)
+os.environ.setdefault("MPLCONFIGDIR", os.path.join(_TMP, "mpl"))
+os.environ.setdefault("XDG_CACHE_HOME", os.path.join(_TMP, "cache"))
+os.environ.setdefault("XDG_CONFIG_HOME", os.path.join(_TMP, "config"))
+os.environ.setdefault("ASTROPY_CACHE_DIR", os.path.join(_TMP, "astropy-cache"))
+os.environ.setdefault("ASTROPY_CONFIG_DIR", os.path.join(_TMP, "astropy-config"))
+os.environ.setdefault("MPLBACKEND", "Agg")
+
+import jax  # noqa: E402
+import pytest  # noqa: E402
+
+jax.config.update("jax_enable_x64", True)
+
+import halo  # noqa: E402,F401
+
+TMP_ROOT = _TMP
+
+
+def pytest_addoption(parser):
+    parser.addoption("--run-slow", action="store_true", default=False, help="run slow calibration suites")
+
+
+def pytest_collection_modifyitems(config, items):
+    if config.getoption("--run-slow"):
+        return
+    skip = pytest.mark.skip(reason="slow: opt in with --run-slow")
+    for item in items:
+        if "slow" in item.keywords:
+            item.add_marker(skip)
