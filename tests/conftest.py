@@ -11,6 +11,8 @@ os.environ.setdefault("XDG_CONFIG_HOME", os.path.join(_TMP, "config"))
 os.environ.setdefault("ASTROPY_CACHE_DIR", os.path.join(_TMP, "astropy-cache"))
 os.environ.setdefault("ASTROPY_CONFIG_DIR", os.path.join(_TMP, "astropy-config"))
 os.environ.setdefault("MPLBACKEND", "Agg")
+for _var in ("MPLCONFIGDIR", "XDG_CACHE_HOME", "XDG_CONFIG_HOME", "ASTROPY_CACHE_DIR", "ASTROPY_CONFIG_DIR"):
+    os.makedirs(os.environ[_var], exist_ok=True)
 
 import jax  # noqa: E402
 import pytest  # noqa: E402

@@ -1,0 +1,345 @@
+"""Jeans solver against analytic solutions and an independent scipy quadrature.
+
+References used here:
+- Plummer self-consistent isotropic model: sigma_los^2(R) = 3 pi G M / (64 sqrt(R^2 + a^2)),
+  global <sigma_los^2> = pi G M / (32 a) (Dejonghe 1987, MNRAS 224, 13).
+- Isotropic Hernquist sigma_r^2 (Hernquist 1990, ApJ 356, 359, eq. 10).
+- Isotropic NFW sigma_r^2 (Lokas & Mamon 2001, MNRAS 321, 155, eq. 14).
+- Single-integral kernel form of the projected dispersion (Mamon & Lokas 2005, MNRAS 363, 705,
+  appendix), evaluated here by nested scipy quadrature as the independent reference.
+- Virial identity: luminosity-weighted global <sigma_los^2> = (G/3) Int 4 pi r nu M dr for any
+  beta(r) (e.g. Binney & Tremaine 2008, sec. 4.8.3).
+"""
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+import pytest
+from scipy import integrate
+
+from halo.anisotropy import BaesVanHese, Constant, OsipkovMerritt
+from halo.constants import G
+from halo.dark import NFW
+from halo.jeans import DEFAULT, FAST, Orders, global_dispersion, sigma_los, sigma_r
+from halo.light import Plummer
+from halo.mass import MassModel, Stars
+
+TOL_DEFAULT = 1e-4  # the issue's requirement; measured errors are printed by -s
+TOL_FAST = 1e-3
+
+# --------------------------------------------------------------------------------------------
+# analytic solutions
+
+
+@pytest.mark.parametrize("orders,tol", [(DEFAULT, 1e-6), (FAST, 3e-5)])
+def test_plummer_self_consistent(orders, tol):
+    # Dejonghe 1987: sigma_los^2 = 3 pi G M / (64 sqrt(R^2 + a^2))
+    a, m = 0.02, 1e5
+    light = Plummer(a)
+    R = np.geomspace(0.01, 10.0, 50) * a
+    s = np.asarray(sigma_los(Stars(light, m), light, Constant(0.0), R, orders))
+    ref = np.sqrt(3 * np.pi * G * m / (64 * np.sqrt(R**2 + a**2)))
+    err = np.max(np.abs(s / ref - 1))
+    print(f"plummer self-consistent max rel err {err:.2e}")
+    assert err < tol
+
+
+def test_plummer_check_values():
+    # REFERENCES [computed]: M = 1e5 Msun, a = 20 pc: sigma_los(0, a, 3a) = 1.779554, 1.496420,
+    # 1.000717 km/s (R = 0 is clamped to the grid's inner radius, 10^-3.5 a)
+    light = Plummer(0.02)
+    s = sigma_los(Stars(light, 1e5), light, Constant(0.0), jnp.array([0.0, 0.02, 0.06]))
+    np.testing.assert_allclose(s, [1.779554, 1.496420, 1.000717], rtol=2e-6)
+
+
+class _HernquistTracer:
+    """Hernquist (1990) density as a tracer (normalised), only what sigma_r needs."""
+
+    def __init__(self, a):
+        self.a = a
+
+    def density(self, r):
+        return self.a / (2 * jnp.pi * r * (r + self.a) ** 3)
+
+    def mass(self, r):
+        return r**2 / (r + self.a) ** 2
+
+    def r_half_2d(self):
+        return self.a
+
+    def r_edge(self):
+        return jnp.inf
+
+
+def test_hernquist_isotropic_sigma_r():
+    # Hernquist 1990 eq. 10 with G = M = a = 1; values from REFERENCES [computed]; here G is ours,
+    # so M = 1/G
+    h = _HernquistTracer(1.0)
+
+    class Mass:
+        def mass(self, r):
+            return h.mass(r) / G
+
+    r = jnp.array([0.1, 0.5, 1.0, 2.0])
+    s2 = np.asarray(sigma_r(Mass(), h, Constant(0.0), r)) ** 2
+    np.testing.assert_allclose(s2, [0.08709925, 0.10390824, 0.08684411, 0.06178250], rtol=1e-6)
+
+
+def test_nfw_isotropic_sigma_r():
+    # Lokas & Mamon 2001 eq. 14 (NFW tracer in its own potential), in units of 4 pi G rho_s r_s^2;
+    # values from REFERENCES [computed]
+    halo = NFW(rho_s=1.0, r_s=1.0)
+
+    class Tracer:
+        def density(self, r):
+            return halo.density(r)
+
+        def r_half_2d(self):
+            return 1.0
+
+        def r_edge(self):
+            return jnp.inf
+
+    x = jnp.array([0.01, 0.1, 0.5, 1.0, 2.0, 10.0])
+    orders = Orders(lo_dex=-4.0, hi_dex=4.0, n_grid=240)
+    s2 = np.asarray(sigma_r(halo, Tracer(), Constant(0.0), x, orders)) ** 2 / (4 * np.pi * G)
+    ref = [0.01534105, 0.05889361, 0.09225691, 0.09343940, 0.08412643, 0.04437937]
+    np.testing.assert_allclose(s2, ref, rtol=1e-5)
+
+
+# --------------------------------------------------------------------------------------------
+# independent reference: Mamon & Lokas (2005) kernel form by nested scipy quadrature
+
+
+def _beta_np(kind, p):
+    if kind == "constant":
+        return lambda r: p["beta"] + 0.0 * r, lambda r: r ** (2 * p["beta"])
+    if kind == "om":
+        ra = p["r_a"]
+        return lambda r: r**2 / (r**2 + ra**2), lambda r: 1 + (r / ra) ** 2
+    b0, bi, ra, eta = p["beta_0"], p["beta_inf"], p["r_a"], p["eta"]
+
+    def beta(r):
+        y = (r / ra) ** eta
+        return (b0 + bi * y) / (1 + y)
+
+    def f(r):
+        return r ** (2 * b0) * (1 + (r / ra) ** eta) ** (2 * (bi - b0) / eta)
+
+    return beta, f
+
+
+def kernel(u, R, beta, f):
+    """K(u) = (f(s)/s) Int_R^s (1 - beta R^2/r^2) r / (f(r) sqrt(r^2 - R^2)) dr, s = u R,
+    with r = R cosh(tau) (Mamon & Lokas 2005, appendix, general form before closed forms)."""
+    s = u * R
+    tmax = np.arccosh(u)
+
+    def g(tau):
+        r = R * np.cosh(tau)
+        return (1 - beta(r) * (R / r) ** 2) * r / f(r)
+
+    val, _ = integrate.quad(g, 0, tmax, epsabs=0, epsrel=1e-11, limit=200)
+    return f(s) / s * val
+
+
+def test_kernel_check_values():
+    # REFERENCES [computed]: K(3; beta=0.25) = 1.1158575401, K(2; beta=-1.3) = 0.5889666616,
+    # K_OM(3; r_a/R = 1) = 1.7214786549; closed forms of Mamon & Lokas 2005 (their A16, A18)
+    b, f = _beta_np("constant", {"beta": 0.25})
+    assert kernel(3.0, 1.0, b, f) == pytest.approx(1.1158575401, rel=1e-9)
+    b, f = _beta_np("constant", {"beta": -1.3})
+    assert kernel(2.0, 1.0, b, f) == pytest.approx(0.5889666616, rel=1e-9)
+    b, f = _beta_np("om", {"r_a": 1.0})
+    assert kernel(3.0, 1.0, b, f) == pytest.approx(1.7214786549, rel=1e-9)
+    # beta = 0: K = sqrt(1 - 1/u^2) (Mamon & Lokas 2005)
+    b, f = _beta_np("constant", {"beta": 0.0})
+    assert kernel(2.5, 1.0, b, f) == pytest.approx(np.sqrt(1 - 1 / 2.5**2), rel=1e-10)
+
+
+def _nfw_mass_np(rho_s, r_s):
+    return lambda r: 4 * np.pi * rho_s * r_s**3 * (np.log1p(r / r_s) - r / (r + r_s))
+
+
+def _burkert_mass_np(rho_s, r_s):
+    # Burkert 1995 profile; mass closed form of Mori & Burkert 2000 (ApJ 538, 559)
+    def m(r):
+        x = r / r_s
+        return np.pi * rho_s * r_s**3 * (np.log((1 + x) ** 2 * (1 + x**2)) - 2 * np.arctan(x))
+
+    return m
+
+
+def sigma_los_reference(R, mass, a, beta, f, m_star=0.0):
+    """sigma_los^2 = 2 G Int_R^inf K(r/R) nu M dr / r / Sigma (Mamon & Lokas 2005), Plummer
+    tracer of scale a, mass(r) plus optional stars following the light."""
+
+    def nu(r):
+        return 3 / (4 * np.pi * a**3) * (1 + (r / a) ** 2) ** -2.5
+
+    def mtot(r):
+        return mass(r) + m_star * r**3 / (r**2 + a**2) ** 1.5
+
+    def integrand(y):  # r = R e^y
+        r = R * np.exp(y)
+        return kernel(np.exp(y), R, beta, f) * nu(r) * mtot(r)
+
+    y_max = np.log(1e4 * max(a, R) / R)
+    pts = [np.log(max(a / R, 1.0001) * k) for k in (1.0, 3.0, 10.0)]
+    pts = [p for p in pts if 0 < p < y_max]
+    val, _ = integrate.quad(integrand, 0, y_max, epsabs=0, epsrel=1e-10, limit=400, points=pts)
+    sigma = 1 / (np.pi * a**2) / (1 + (R / a) ** 2) ** 2
+    return np.sqrt(2 * G * val / sigma)
+
+
+ANISOTROPIES = {
+    "iso": ("constant", {"beta": 0.0}),
+    "radial": ("constant", {"beta": 0.5}),
+    "tangential": ("constant", {"beta": -0.8}),
+    "om": ("om", {"r_a": 0.05}),
+    "bvh": ("bvh", {"beta_0": -0.2, "beta_inf": 0.6, "r_a": 0.04, "eta": 1.5}),
+}
+
+
+def _anis_jax(kind, p):
+    if kind == "constant":
+        return Constant(p["beta"])
+    if kind == "om":
+        return OsipkovMerritt(p["r_a"])
+    return BaesVanHese(p["beta_0"], p["beta_inf"], p["r_a"], p["eta"])
+
+
+HALOS = {
+    "nfw": (lambda: NFW(rho_s=3e7, r_s=0.6), lambda: _nfw_mass_np(3e7, 0.6)),
+    "cored": (None, lambda: _burkert_mass_np(2e8, 0.3)),
+}
+
+R_E = 0.03  # Plummer projected half-light radius [kpc]
+R_TEST = np.array([0.01, 0.1, 1.0, 3.0, 10.0]) * R_E
+
+
+def _jax_halo(name):
+    if name == "nfw":
+        return NFW(rho_s=3e7, r_s=0.6)
+    from halo.dark import Burkert
+
+    return Burkert(rho_s=2e8, r_s=0.3)
+
+
+@pytest.mark.parametrize("halo_name", ["nfw", "cored"])
+@pytest.mark.parametrize("anis_name", list(ANISOTROPIES))
+def test_against_scipy_kernel_reference(halo_name, anis_name):
+    kind, p = ANISOTROPIES[anis_name]
+    beta, f = _beta_np(kind, p)
+    mass_np = HALOS[halo_name][1]()
+    m_star = 2e4
+    ref = np.array([sigma_los_reference(R, mass_np, R_E, beta, f, m_star) for R in R_TEST])
+    light = Plummer(R_E)
+    model = MassModel((_jax_halo(halo_name), Stars(light, m_star)))
+    anis = _anis_jax(kind, p)
+    for orders, tol in [(DEFAULT, TOL_DEFAULT / 5), (FAST, TOL_FAST)]:
+        s = np.asarray(sigma_los(model, light, anis, R_TEST, orders))
+        err = np.max(np.abs(s / ref - 1))
+        print(f"{halo_name} {anis_name} {orders is DEFAULT and 'DEFAULT' or 'FAST'} {err:.2e}")
+        assert err < tol
+
+
+# --------------------------------------------------------------------------------------------
+# identities, limits, gradients
+
+
+@pytest.mark.parametrize("anis_name", list(ANISOTROPIES))
+def test_virial_identity(anis_name):
+    # <sigma_los^2>_global = (G/3) Int 4 pi r nu M dr for any beta(r) (virial theorem)
+    kind, p = ANISOTROPIES[anis_name]
+    light = Plummer(R_E)
+    m_np = _nfw_mass_np(3e7, 0.6)
+    a = R_E
+
+    def integrand(r):
+        nu = 3 / (4 * np.pi * a**3) * (1 + (r / a) ** 2) ** -2.5
+        return 4 * np.pi * r * nu * m_np(r)
+
+    ref = G / 3 * integrate.quad(integrand, 0, np.inf, epsabs=0, epsrel=1e-12, limit=300)[0]
+    val = float(global_dispersion(NFW(3e7, 0.6), light, _anis_jax(kind, p)))
+    assert val == pytest.approx(ref, rel=1e-5)
+
+
+def test_radial_anisotropy_cored_centre_is_finite():
+    # constant beta > 0 with a cored tracer: sigma_los diverges as R -> 0 (An & Evans 2006); the
+    # solver clamps R to its inner grid radius and returns a finite value there
+    light = Plummer(R_E)
+    s = sigma_los(NFW(3e7, 0.6), light, Constant(0.6), jnp.array([0.0, 1e-9, 1e-6, 1e-3]))
+    s = np.asarray(s)
+    assert np.all(np.isfinite(s))
+    r_min = R_E * 10**DEFAULT.lo_dex
+    assert s[0] == s[1] == s[2]
+    assert s[0] == pytest.approx(float(sigma_los(NFW(3e7, 0.6), light, Constant(0.6), r_min)))
+    assert s[0] > s[3]  # still rising inwards, as the divergence says
+
+
+def test_convergence_with_orders():
+    light = Plummer(R_E)
+    model = MassModel((NFW(3e7, 0.6), Stars(light, 2e4)))
+    anis = OsipkovMerritt(0.05)
+    ref = sigma_los(model, light, anis, R_TEST, Orders(n_grid=400, n_panel=6, n_proj=96))
+    errs = []
+    for n in (32, 64, 128):
+        o = Orders(n_grid=n, n_panel=3, n_proj=n // 2, n_proj_panels=2)
+        errs.append(float(jnp.max(jnp.abs(sigma_los(model, light, anis, R_TEST, o) / ref - 1))))
+    assert errs[0] > errs[1] > errs[2]
+    assert errs[2] < 1e-5
+
+
+PARAMS = ["rho_s", "r_s", "a", "beta", "m_star"]
+
+
+def _sigma_from(theta, R, orders=FAST):
+    rho_s, r_s, a, beta, m_star = theta
+    light = Plummer(a)
+    model = MassModel((NFW(rho_s, r_s), Stars(light, m_star)))
+    return sigma_los(model, light, Constant(beta), R, orders)
+
+
+def test_gradients_vs_finite_differences():
+    theta = jnp.array([3e7, 0.6, R_E, 0.3, 2e4])
+    R = jnp.array(0.5 * R_E)
+    g = jax.grad(lambda t: _sigma_from(t, R, DEFAULT))(theta)
+    for i, name in enumerate(PARAMS):
+        h = 1e-5 * theta[i]
+        up = _sigma_from(theta.at[i].add(h), R, DEFAULT)
+        dn = _sigma_from(theta.at[i].add(-h), R, DEFAULT)
+        fd = (up - dn) / (2 * h)
+        assert float(g[i]) == pytest.approx(float(fd), rel=1e-5, abs=1e-12), name
+    # anisotropy parameters of OM and BvH, and R itself
+    light = Plummer(R_E)
+
+    def s_bvh(p):
+        return sigma_los(NFW(3e7, 0.6), light, BaesVanHese(p[0], p[1], p[2], p[3]), p[4])
+
+    p = jnp.array([-0.2, 0.6, 0.04, 1.5, 0.02])
+    g = jax.grad(s_bvh)(p)
+    for i in range(5):
+        h = 1e-6 * max(abs(float(p[i])), 0.01)
+        fd = (s_bvh(p.at[i].add(h)) - s_bvh(p.at[i].add(-h))) / (2 * h)
+        assert float(g[i]) == pytest.approx(float(fd), rel=1e-5, abs=1e-10), i
+
+
+def test_jit_matches_eager_and_vmap():
+    theta = jnp.array([3e7, 0.6, R_E, 0.3, 2e4])
+    eager = _sigma_from(theta, R_TEST)
+    jitted = jax.jit(_sigma_from)(theta, R_TEST)
+    np.testing.assert_allclose(eager, jitted, rtol=1e-12)
+    batch = jnp.stack([theta, theta.at[3].set(-0.5), theta.at[0].set(1e8)])
+    out = jax.vmap(lambda t: _sigma_from(t, R_TEST))(batch)
+    np.testing.assert_allclose(out[0], eager, rtol=1e-12)
+    assert np.all(out[2] > out[0])  # denser halo, hotter stars
+
+
+def test_special_kernels_closed_form_beta_half():
+    # beta = 1/2 kernel: K = arccosh u - sqrt(1 - 1/u^2)/2 (Mamon & Lokas 2005, eq. A16 case)
+    b, f = _beta_np("constant", {"beta": 0.5})
+    for u in (1.5, 3.0, 20.0):
+        assert kernel(u, 1.0, b, f) == pytest.approx(
+            np.arccosh(u) - np.sqrt(1 - 1 / u**2) / 2, rel=1e-9
+        )
