@@ -137,7 +137,9 @@ def predict_cmd(
     typer.echo("parameters: " + ", ".join(f"{k}={_fmt(v)}" for k, v in res["parameters"].items()))
     typer.echo("")
     typer.echo(f"{'R [pc]':>10s} {'sigma_los [km/s]':>17s} {'M(<r) [Msun]':>14s}")
-    for r, s, m in zip(res["radii_pc"], res["sigma_los_kms"], res["mass_enclosed_msun"], strict=True):
+    for r, s, m in zip(
+        res["radii_pc"], res["sigma_los_kms"], res["mass_enclosed_msun"], strict=True
+    ):
         typer.echo(f"{r:10.2f} {s:17.4f} {m:14.4e}")
     typer.echo("")
     typer.echo(f"{'theta [deg]':>11s} {'log10 J [GeV^2 cm^-5]':>22s} {'log10 D [GeV cm^-2]':>20s}")

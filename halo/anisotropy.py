@@ -71,4 +71,8 @@ def symmetrised_to_beta(beta_sym):
     return 2.0 * beta_sym / (1.0 + beta_sym)
 
 
-ANISOTROPIES = {"constant": Constant, "osipkov-merritt": OsipkovMerritt, "baes-van-hese": BaesVanHese}
+ANISOTROPIES = {
+    "constant": Constant,
+    "osipkov-merritt": OsipkovMerritt,
+    "baes-van-hese": BaesVanHese,
+}

@@ -38,7 +38,8 @@ def check_values(spec, values, source="--set"):
         forms = [f for f in (("m200", "c200"), ("rho_s", "r_s")) if f[0] in out or f[1] in out]
         if len(forms) != 1 or not all(k in out for k in forms[0]):
             raise InputError(
-                f"{source}: give the halo as m200 and c200, or as rho_s and r_s (model '{spec.name}')"
+                f"{source}: give the halo as m200 and c200, or as rho_s and r_s "
+                f"(model '{spec.name}')"
             )
         for s in SHAPE_PARAMETERS[spec.dark_profile]:
             if s not in out and s not in OPTIONAL_SHAPE:

@@ -8,7 +8,8 @@ differentiable in every parameter):
    has the solution nu sigma_r^2(r) = (1/f(r)) Int_r^inf f nu G M / s^2 ds, f = exp Int 2 beta/r dr.
    The integral is accumulated panel by panel (Gauss-Legendre in ln s between grid nodes, summed
    from the outside in), plus a power-law tail beyond the grid.
-2. Projection. Sigma sigma_los^2(R) = 2 Int_R^inf (1 - beta R^2/r^2) nu sigma_r^2 r dr / sqrt(r^2 - R^2)
+2. Projection. Sigma sigma_los^2(R) =
+   2 Int_R^inf (1 - beta R^2/r^2) nu sigma_r^2 r dr / sqrt(r^2 - R^2)
    (Binney & Mamon 1982, MNRAS 200, 361, eq. 7); with r = R cosh t the inverse square root
    disappears (common practice) and the integral is a Gauss-Legendre sum in t. Between grid nodes
    ln(nu sigma_r^2) is interpolated with cubic Hermite polynomials in ln r, using the exact slope
@@ -19,6 +20,9 @@ Accuracy (tests/test_jeans.py): with the default orders the relative error of si
 1e-5 for R from 0.01 to 10 projected half-light radii for NFW, cored and Plummer self-consistent
 models with constant, Osipkov-Merritt and Baes & van Hese anisotropy; ``FAST`` orders used inside
 samplers give about 1e-4.
+
+The public functions are jitted (``orders`` static); they can be called inside other jitted,
+vmapped or differentiated code.
 
 Inside the innermost grid radius ``r_min = 10**lo_dex * R_e`` the solver returns the value at
 ``r_min`` (R is clamped). This matters only when sigma_los diverges at R -> 0 (constant beta > 0
@@ -72,7 +76,7 @@ DEFAULT = Orders()
 FAST = Orders(n_grid=64, n_panel=3, n_proj=32, n_proj_panels=1, lo_dex=-3.0, hi_dex=2.5, n_ap=24)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _gauss_legendre(n):
     x, w = np.polynomial.legendre.leggauss(n)
     return 0.5 * (x + 1.0), 0.5 * w  # on [0, 1]
@@ -139,10 +143,17 @@ def _interp_lnp(grid, lnr):
     m0, m1 = grid.slope[k] * grid.h, grid.slope[k + 1] * grid.h
     s2, s3 = s * s, s * s * s
     return (
-        (2 * s3 - 3 * s2 + 1) * y0 + (s3 - 2 * s2 + s) * m0 + (-2 * s3 + 3 * s2) * y1 + (s3 - s2) * m1
+        (2 * s3 - 3 * s2 + 1) * y0
+        + (s3 - 2 * s2 + s) * m0
+        + (-2 * s3 + 3 * s2) * y1
+        + (s3 - s2) * m1
     )
 
 
+_jit = functools.partial(jax.jit, static_argnames=("orders",))
+
+
+@_jit
 def sigma_r(mass_model, light, anis, r, orders=DEFAULT):
     """Radial velocity dispersion sigma_r(r) [km/s] at 3D radii r [kpc] (grid interpolation)."""
     grid = radial_grid(mass_model, light, anis, orders)
@@ -176,6 +187,7 @@ def sigma_los2_weighted(mass_model, light, anis, R, orders=DEFAULT, grid=None):
     return jnp.where(R < grid.r_hi, out, 0.0)
 
 
+@_jit
 def sigma_los(mass_model, light, anis, R, orders=DEFAULT):
     """Line-of-sight velocity dispersion sigma_los(R) [km/s] at projected radii R [kpc].
 
@@ -198,6 +210,7 @@ def sigma_los(mass_model, light, anis, R, orders=DEFAULT):
     return jnp.where(ok, jnp.sqrt(jnp.where(ok, s2 / jnp.where(ok, sig, 1.0), 1.0)), 0.0)
 
 
+@_jit
 def aperture_dispersion(mass_model, light, anis, R_ap, orders=DEFAULT):
     """Luminosity-weighted mean sigma_los^2 inside projected radius R_ap [kpc], in (km/s)^2.
 
@@ -220,11 +233,9 @@ def aperture_dispersion(mass_model, light, anis, R_ap, orders=DEFAULT):
     return num / light.enclosed_2d(R_top)
 
 
+@_jit
 def global_dispersion(mass_model, light, anis, orders=DEFAULT):
     """Luminosity-weighted sigma_los^2 over the whole system [(km/s)^2]."""
     r_top = light.r_half_2d() * 10.0**orders.hi_dex
     return aperture_dispersion(mass_model, light, anis, jnp.minimum(r_top, light.r_edge()), orders)
 
-
-# convenient jitted entry point for callers that do not jit themselves
-sigma_los_jit = jax.jit(sigma_los, static_argnames=("orders",))

@@ -72,7 +72,7 @@ class Satellite:
 
     @property
     def luminosity_v(self):
-        """V-band luminosity [Lsun] from M_V, L = 10^(-0.4 (M_V - 4.83)) (common practice), or None."""
+        """V-band luminosity [Lsun], 10^(-0.4 (M_V - 4.83)) (common practice); None without M_V."""
         if self.absolute_magnitude_v is None:
             return None
         return 10.0 ** (-0.4 * (self.absolute_magnitude_v - 4.83))
@@ -89,7 +89,7 @@ class Satellite:
         return 0.5 * (lo + hi) * lum, 0.5 * (hi - lo) * lum
 
     def light(self, r_half_kpc=None):
-        """The light profile (a :mod:`halo.light` object) at the circularised radius or a given one."""
+        """The light profile (:mod:`halo.light`) at the circularised radius or ``r_half_kpc``."""
         r = self.r_half_circ_kpc if r_half_kpc is None else r_half_kpc
         cls = LIGHT_PROFILES[self.light_profile]
         if self.light_profile == "king":
@@ -136,7 +136,9 @@ def parse_satellite(data, source="<memory>"):
             f"{where} key 'light_profile' must be one of {', '.join(LIGHT_PROFILES)}, got {prof!r}"
         )
     if prof == "king" and "king_concentration" not in values:
-        raise InputError(f"{where} key 'king_concentration' is required with light_profile = 'king'")
+        raise InputError(
+            f"{where} key 'king_concentration' is required with light_profile = 'king'"
+        )
     if "stellar_ml_v" in values:
         ml = values["stellar_ml_v"]
         ok = (

@@ -39,21 +39,46 @@ def test_models_lists_every_spec(capsys):
 
 def test_predict_json_matches_library(capsys):
     code, out, err = run(
-        capsys, "predict", "demo", "--model", "nfw", "--set", "m200=1e9", "--set", "c200=20",
-        "--set", "beta=0.2", "--radii-pc", "10,30,90", "--angles-deg", "0.1,0.5", "--json",
+        capsys,
+        "predict",
+        "demo",
+        "--model",
+        "nfw",
+        "--set",
+        "m200=1e9",
+        "--set",
+        "c200=20",
+        "--set",
+        "beta=0.2",
+        "--radii-pc",
+        "10,30,90",
+        "--angles-deg",
+        "0.1,0.5",
+        "--json",
     )
     assert code == 0, err
     res = json.loads(out)
-    for key in ("radii_pc", "sigma_los_kms", "mass_enclosed_msun", "angles_deg", "log10_j", "log10_d"):
+    for key in (
+        "radii_pc",
+        "sigma_los_kms",
+        "mass_enclosed_msun",
+        "angles_deg",
+        "log10_j",
+        "log10_d",
+    ):
         assert key in res
     sat = read_satellite(demo_satellite_path())
     light = sat.light()
     halo = NFW.from_m200_c200(1e9, 20.0, rho_c=rho_crit())
     model = MassModel((halo, Stars(light, sat.stellar_mass_msun)))
     R = jnp.array([10.0, 30.0, 90.0]) * 1e-3
-    np.testing.assert_allclose(res["sigma_los_kms"], sigma_los(model, light, Constant(0.2), R), rtol=1e-10)
+    np.testing.assert_allclose(
+        res["sigma_los_kms"], sigma_los(model, light, Constant(0.2), R), rtol=1e-10
+    )
     np.testing.assert_allclose(res["mass_enclosed_msun"], model.mass(R), rtol=1e-10)
-    np.testing.assert_allclose(res["log10_j"], log10_j(halo, sat.distance_kpc, jnp.array([0.1, 0.5])), rtol=1e-10)
+    np.testing.assert_allclose(
+        res["log10_j"], log10_j(halo, sat.distance_kpc, jnp.array([0.1, 0.5])), rtol=1e-10
+    )
     assert res["radii_pc"] == [10.0, 30.0, 90.0]
 
 
@@ -76,8 +101,18 @@ def test_predict_other_parametrisation_and_anisotropy(capsys, tmp_path):
         '[parameters.r_a]\nprior = "log-uniform"\nlow = 0.001\nhigh = 10.0\n'
     )
     code, out, err = run(
-        capsys, "predict", "demo", "--model", str(spec), "--set", "rho_s=3e7", "--set", "r_s=0.5",
-        "--set", "r_a=0.05", "--json",
+        capsys,
+        "predict",
+        "demo",
+        "--model",
+        str(spec),
+        "--set",
+        "rho_s=3e7",
+        "--set",
+        "r_s=0.5",
+        "--set",
+        "r_a=0.05",
+        "--json",
     )
     assert code == 0, err
     assert len(json.loads(out)["sigma_los_kms"]) == 5
@@ -85,16 +120,58 @@ def test_predict_other_parametrisation_and_anisotropy(capsys, tmp_path):
 
 BAD = [
     (["predict", "demo", "--model", "nope", "--set", "m200=1e9"], "unknown model"),
-    (["predict", "demo", "--model", "nfw", "--set", "m200=1e9", "--set", "c200=20", "--set", "foo=1"],
-     "unknown parameter 'foo'"),
+    (
+        [
+            "predict",
+            "demo",
+            "--model",
+            "nfw",
+            "--set",
+            "m200=1e9",
+            "--set",
+            "c200=20",
+            "--set",
+            "foo=1",
+        ],
+        "unknown parameter 'foo'",
+    ),
     (["predict", "demo", "--model", "nfw", "--set", "m200=1e9"], "m200 and c200"),
     (["predict", "demo", "--model", "nfw", "--set", "m200=-1e9", "--set", "c200=20"], "positive"),
-    (["predict", "demo", "--model", "nfw", "--set", "m200=1e9", "--set", "c200=20", "--radii-pc", "10,-3"],
-     "--radii-pc"),
+    (
+        [
+            "predict",
+            "demo",
+            "--model",
+            "nfw",
+            "--set",
+            "m200=1e9",
+            "--set",
+            "c200=20",
+            "--radii-pc",
+            "10,-3",
+        ],
+        "--radii-pc",
+    ),
     (["predict", "demo", "--model", "nfw", "--set", "m200", "--set", "c200=20"], "KEY=VALUE"),
-    (["predict", "demo", "--model", "nfw", "--set", "m200=abc", "--set", "c200=20"], "expected a number"),
-    (["predict", "demo", "--model", "nfw", "--set", "m200=1e9", "--set", "c200=20", "--set", "beta=1.5"],
-     "beta"),
+    (
+        ["predict", "demo", "--model", "nfw", "--set", "m200=abc", "--set", "c200=20"],
+        "expected a number",
+    ),
+    (
+        [
+            "predict",
+            "demo",
+            "--model",
+            "nfw",
+            "--set",
+            "m200=1e9",
+            "--set",
+            "c200=20",
+            "--set",
+            "beta=1.5",
+        ],
+        "beta",
+    ),
     (["predict", "missing.toml", "--model", "nfw"], "no such file"),
     (["frobnicate"], "No such command"),
 ]
@@ -115,7 +192,9 @@ def test_malformed_satellite_and_spec(capsys, tmp_path):
     code, _, err = run(capsys, "predict", str(sat), "--model", "nfw")
     assert code == 2 and "malformed TOML" in err and str(sat) in err
     sat.write_text(Path(demo_satellite_path()).read_text() + "\ncolour = 'red'\n")
-    code, _, err = run(capsys, "predict", str(sat), "--model", "nfw", "--set", "m200=1e9", "--set", "c200=20")
+    code, _, err = run(
+        capsys, "predict", str(sat), "--model", "nfw", "--set", "m200=1e9", "--set", "c200=20"
+    )
     assert code == 2 and "unknown key 'colour'" in err
     spec = tmp_path / "broken.toml"
     spec.write_text("dark_profile = 'nfw'\nanisotropy = 'constant'\n[parameters.m200\n")
@@ -127,7 +206,12 @@ def test_console_script_exit_codes(tmp_path):
     # the installed entry point, as a user runs it: no traceback, exit 2, one line
     exe = Path(sys.executable).with_name("halo")
     env = dict(os.environ, MPLCONFIGDIR=str(tmp_path))
-    res = subprocess.run([str(exe), "predict", "demo", "--model", "nfw", "--set", "c200=3"],
-                         capture_output=True, text=True, env=env, timeout=300)
+    res = subprocess.run(
+        [str(exe), "predict", "demo", "--model", "nfw", "--set", "c200=3"],
+        capture_output=True,
+        text=True,
+        env=env,
+        timeout=300,
+    )
     assert res.returncode == 2
     assert "Traceback" not in res.stderr and len(res.stderr.strip().splitlines()) == 1
