@@ -92,10 +92,18 @@ class RadialGrid(NamedTuple):
     r_hi: jnp.ndarray
 
 
-def _jeans_integrand(mass_model, light, anis, s):
-    """f nu G M / s, the integrand of I(r) per unit ln s; returned with log f."""
-    log_f = anis.log_f(s)
-    return jnp.exp(log_f) * light.density(s) * G * mass_model.mass(s) / s, log_f
+_LOG_FLOOR = -700.0  # stands for ln 0 (e.g. beyond a truncated tracer's edge)
+
+
+def _safe_log(x):
+    """ln x for x > 0, _LOG_FLOOR for x <= 0, with finite gradients (double where)."""
+    ok = x > 0
+    return jnp.where(ok, jnp.log(jnp.where(ok, x, 1.0)), _LOG_FLOOR)
+
+
+def _log_g(mass_model, light, s):
+    """ln(nu G M / s): the Jeans integrand per unit ln s, without the factor f."""
+    return _safe_log(light.density(s) * G * mass_model.mass(s) / s)
 
 
 def radial_grid(mass_model, light, anis, orders=DEFAULT):
@@ -103,6 +111,12 @@ def radial_grid(mass_model, light, anis, orders=DEFAULT):
 
     Returns a :class:`RadialGrid`; nu is the unit-normalised tracer density [kpc^-3] and
     sigma_r in km/s.
+
+    Notes
+    -----
+    Everything is accumulated in logarithms (``cumlogsumexp`` from the outside in), so that
+    f = r^(2 beta) stays representable for strongly tangential or radial anisotropy (beta = -40
+    makes f vary by ~10^500 across the grid).
     """
     r_e = light.r_half_2d()
     ln_lo = jnp.log(r_e) + orders.lo_dex * np.log(10.0)
@@ -110,26 +124,26 @@ def radial_grid(mass_model, light, anis, orders=DEFAULT):
     n = orders.n_grid
     h = (ln_hi - ln_lo) / (n - 1)
     x = ln_lo + h * jnp.arange(n)
-    # panel integrals of f nu G M / s over ln s in [x_k, x_k+1]
+    # ln of the panel integrals of f nu G M / s over ln s in [x_k, x_k+1]
     u, w = _gauss_legendre(orders.n_panel)
     xs = x[:-1, None] + h * u[None, :]
-    g, _ = _jeans_integrand(mass_model, light, anis, jnp.exp(xs))
-    panels = h * jnp.sum(g * w[None, :], axis=1)
-    # tail beyond the grid: integrand taken as a power law with its local slope at r_hi
+    ss = jnp.exp(xs)
+    log_terms = jnp.log(h * w)[None, :] + anis.log_f(ss) + _log_g(mass_model, light, ss)
+    log_panels = jax.scipy.special.logsumexp(log_terms, axis=1)
+    # tail beyond the grid: integrand f g taken as a power law s^p with its local slope at r_hi
     r_top = jnp.exp(x[-1])
-    g_top, _ = _jeans_integrand(mass_model, light, anis, r_top)
-    g_in, _ = _jeans_integrand(mass_model, light, anis, jnp.exp(x[-1] - 0.5 * h))
-    p = (jnp.log(g_top) - jnp.log(g_in)) / (0.5 * h)
-    tail = jnp.where(jnp.isfinite(light.r_edge()), 0.0, g_top / jnp.maximum(-p, 1.0))
-    tail = jnp.where(g_top > 0, tail, 0.0)
-    integral = tail + jnp.concatenate([jnp.cumsum(panels[::-1])[::-1], jnp.zeros(1)])
+    r_in = jnp.exp(x[-1] - 0.5 * h)
+    lg_top = anis.log_f(r_top) + _log_g(mass_model, light, r_top)
+    lg_in = anis.log_f(r_in) + _log_g(mass_model, light, r_in)
+    p = (lg_top - lg_in) / (0.5 * h)
+    log_tail = lg_top - jnp.log(jnp.maximum(-p, 1.0))
+    log_tail = jnp.where(jnp.isfinite(light.r_edge()), _LOG_FLOOR, log_tail)
+    # ln I_k = ln(sum_{j >= k} panel_j + tail)
+    log_cum = jax.lax.cumlogsumexp(log_panels, axis=0, reverse=True)
+    log_int = jnp.logaddexp(jnp.concatenate([log_cum, jnp.full(1, _LOG_FLOOR)]), log_tail)
     r = jnp.exp(x)
-    g_nodes, log_f = _jeans_integrand(mass_model, light, anis, r)
-    # a truncated tracer has I = 0 at its edge: keep the logarithm finite there
-    tiny = jnp.finfo(jnp.float64).tiny
-    integral = jnp.maximum(integral, tiny)
-    lnp = jnp.log(integral) - log_f
-    slope = -2.0 * anis.beta(r) - g_nodes / integral
+    lnp = log_int - anis.log_f(r)  # ln(nu sigma_r^2) = ln(I / f)
+    slope = -2.0 * anis.beta(r) - jnp.exp(_log_g(mass_model, light, r) - lnp)
     return RadialGrid(x0=x[0], h=h, lnp=lnp, slope=slope, r_hi=jnp.exp(x[-1]))
 
 

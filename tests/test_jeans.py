@@ -134,6 +134,8 @@ ANISOTROPIES = {
     "iso": ("constant", {"beta": 0.0}),
     "radial": ("constant", {"beta": 0.5}),
     "tangential": ("constant", {"beta": -0.8}),
+    # beta~ = -0.7 in the symmetrised prior of the fits: f = r^-11 spans ~10^70 on the grid
+    "very-tangential": ("constant", {"beta": -5.67}),
     "om": ("om", {"r_a": 0.05}),
     "bvh": ("bvh", {"beta_0": -0.2, "beta_inf": 0.6, "r_a": 0.04, "eta": 1.5}),
 }
