@@ -184,8 +184,10 @@ def sigma_los2_weighted(mass_model, light, anis, R, orders=DEFAULT, grid=None):
         grid = radial_grid(mass_model, light, anis, orders)
     R = jnp.asarray(R, dtype=jnp.float64)
     r_min = jnp.exp(grid.x0)
-    Rc = jnp.clip(R, r_min, grid.r_hi)
-    t_max = jnp.arccosh(jnp.maximum(grid.r_hi / Rc, 1.0))
+    # radii at or beyond the grid's outer edge give 0; a safe stand-in keeps gradients finite
+    inside = R < grid.r_hi * (1.0 - 1e-9)
+    Rc = jnp.where(inside, jnp.clip(R, r_min, grid.r_hi), r_min)
+    t_max = jnp.arccosh(grid.r_hi / Rc)
     u, w = _gauss_legendre(orders.n_proj)
     m = orders.n_proj_panels
     # panels evenly split in t; nodes (..., m * n_proj)
@@ -198,7 +200,7 @@ def sigma_los2_weighted(mass_model, light, anis, R, orders=DEFAULT, grid=None):
     p = jnp.exp(_interp_lnp(grid, lnr))
     proj = (1.0 - anis.beta(r) * (Rc[..., None] / r) ** 2) * p * r
     out = 2.0 * t_max * jnp.sum(proj * ww, axis=-1)
-    return jnp.where(R < grid.r_hi, out, 0.0)
+    return jnp.where(inside, out, 0.0)
 
 
 @_jit
@@ -217,10 +219,11 @@ def sigma_los(mass_model, light, anis, R, orders=DEFAULT):
     grid = radial_grid(mass_model, light, anis, orders)
     R = jnp.asarray(R, dtype=jnp.float64)
     r_min = jnp.exp(grid.x0)
-    Rc = jnp.clip(R, r_min, grid.r_hi)
+    inside = R < grid.r_hi * (1.0 - 1e-9)
+    Rc = jnp.where(inside, jnp.clip(R, r_min, grid.r_hi), r_min)
     s2 = sigma_los2_weighted(mass_model, light, anis, R, orders, grid)
     sig = light.surface_density(Rc)
-    ok = (R < grid.r_hi) & (sig > 0)
+    ok = inside & (sig > 0) & (s2 > 0)
     return jnp.where(ok, jnp.sqrt(jnp.where(ok, s2 / jnp.where(ok, sig, 1.0), 1.0)), 0.0)
 
 
