@@ -5,8 +5,8 @@ Inputs are the luminosity-weighted (global) line-of-sight velocity dispersion ``
 outputs are enclosed 3D masses [Msun]. The estimators are plain arithmetic, so they accept floats,
 NumPy or JAX arrays (and work under jit, grad and vmap).
 
-:func:`dispersion_ml` measures the global dispersion from a velocity catalogue by maximum likelihood,
-and :func:`propagate` carries sigma_los and r_e uncertainties into any of the estimators.
+:func:`dispersion_ml` measures the global dispersion from a velocity catalogue by maximum
+likelihood, and :func:`propagate` carries sigma_los and r_e uncertainties into the estimators.
 """
 
 import math
@@ -72,9 +72,10 @@ def wolf10_mass(sigma_los, r_e, *, r_half_3d=None):
     -----
     M_1/2 = 3 <sigma_los^2> r_1/2 / G ~= 4 <sigma_los^2> R_e / G, i.e. about 930 sigma^2 R_e with
     sigma in km/s and R_e in pc. The r_1/2 = (4/3) R_e step is good to about 2 per cent for common
-    light profiles (Plummer 1.305, exponential 1.325). The estimator is least sensitive to the
-    anisotropy when the dispersion profile is flat near R_e (dark-matter-dominated systems); for a
-    self-consistent mass-follows-light Plummer sphere it gives 0.785 M(< r_1/2) (see tests).
+    light profiles [memory] (r_1/2 / R_e: Plummer 1.305, exponential 1.325). The estimator is
+    least sensitive to the anisotropy when the dispersion profile is flat near R_e
+    (dark-matter-dominated systems); for a self-consistent mass-follows-light Plummer sphere it
+    gives 0.785 M(< r_1/2) (see tests).
 
     References
     ----------
@@ -136,6 +137,8 @@ class DispersionFit(NamedTuple):
 def _profile(sigma, v, e2, w):
     """Profile log-likelihood (mean maximised analytically) and the maximising mean."""
     s = sigma**2 + e2
+    if np.min(s) <= 0.0:  # sigma = 0 with an error-free star: zero-width Gaussian
+        return -math.inf, float(np.average(v, weights=w))
     mu = np.sum(w * v / s) / np.sum(w / s)
     return -0.5 * np.sum(w * ((v - mu) ** 2 / s + np.log(s))), mu
 
@@ -186,8 +189,9 @@ def dispersion_ml(v, v_err, *, weights=None, xatol=1e-8):
     def nll(sig):
         return -_profile(sig, v, e2, w)[0]
 
-    res = optimize.minimize_scalar(nll, bounds=(0.0, top), method="bounded",
-                                   options={"xatol": xatol})
+    res = optimize.minimize_scalar(
+        nll, bounds=(0.0, top), method="bounded", options={"xatol": xatol}
+    )
     sig = float(res.x)
     # the bounded search never evaluates the end point sigma = 0 exactly
     if nll(0.0) <= res.fun:
@@ -197,7 +201,12 @@ def dispersion_ml(v, v_err, *, weights=None, xatol=1e-8):
     def target(x):
         return _profile(x, v, e2, w)[0] - (lmax - 0.5)
 
-    lo = 0.0 if target(0.0) >= 0.0 else optimize.brentq(target, 0.0, sig, xtol=xatol)
+    t0 = target(0.0)
+    if t0 >= 0.0:
+        lo = 0.0
+    else:  # an error-free star makes ln L_p(0) = -inf: start the bracket just above zero
+        a = 0.0 if math.isfinite(t0) else 1e-9 * sig
+        lo = optimize.brentq(target, a, sig, xtol=xatol)
     hi_bracket = max(top, 2.0 * sig + 1.0)
     while target(hi_bracket) > 0.0:
         hi_bracket *= 2.0
@@ -210,8 +219,17 @@ def dispersion_ml(v, v_err, *, weights=None, xatol=1e-8):
     return DispersionFit(float(mu), mean_err, sig, sigma_err, float(lo), float(hi), int(v.size))
 
 
-def propagate(estimator, sigma_los, r_e, sigma_err=0.0, r_e_err=0.0, *, method="linear",
-              n_samples=200_000, seed=0):
+def propagate(
+    estimator,
+    sigma_los,
+    r_e,
+    sigma_err=0.0,
+    r_e_err=0.0,
+    *,
+    method="linear",
+    n_samples=200_000,
+    seed=0,
+):
     """Mass estimate with sigma_los and R_e uncertainties, as quantiles [Msun].
 
     Parameters
@@ -245,8 +263,15 @@ def propagate(estimator, sigma_los, r_e, sigma_err=0.0, r_e_err=0.0, *, method="
         rel = math.hypot(2.0 * sigma_err / sigma_los, r_e_err / r_e)
         sd = m * rel
         z1, z2 = 0.994457883209753, 1.959963984540054  # Gaussian 84th and 97.5th percentiles
-        return {"median": m, "p16": m - z1 * sd, "p84": m + z1 * sd, "p2.5": m - z2 * sd,
-                "p97.5": m + z2 * sd, "mean": m, "std": sd}
+        return {
+            "median": m,
+            "p16": m - z1 * sd,
+            "p84": m + z1 * sd,
+            "p2.5": m - z2 * sd,
+            "p97.5": m + z2 * sd,
+            "mean": m,
+            "std": sd,
+        }
     if method != "montecarlo":
         raise ValueError(f"unknown propagation method {method!r} (linear, montecarlo)")
     rng = np.random.default_rng(seed)
@@ -254,8 +279,15 @@ def propagate(estimator, sigma_los, r_e, sigma_err=0.0, r_e_err=0.0, *, method="
     rad = _positive_normal(rng, r_e, r_e_err, n_samples)
     mass = np.asarray(func(sig, rad), dtype=float)
     q = np.percentile(mass, [50.0, 16.0, 84.0, 2.5, 97.5])
-    return {"median": float(q[0]), "p16": float(q[1]), "p84": float(q[2]), "p2.5": float(q[3]),
-            "p97.5": float(q[4]), "mean": float(mass.mean()), "std": float(mass.std())}
+    return {
+        "median": float(q[0]),
+        "p16": float(q[1]),
+        "p84": float(q[2]),
+        "p2.5": float(q[3]),
+        "p97.5": float(q[4]),
+        "mean": float(mass.mean()),
+        "std": float(mass.std()),
+    }
 
 
 def _positive_normal(rng, mean, sd, n):

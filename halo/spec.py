@@ -118,11 +118,14 @@ def parse_spec(data, name, source):
     dark = data["dark_profile"]
     if dark != "none" and dark not in DARK_PROFILES:
         raise _spec_error(
-            source, f"dark_profile must be 'none' or one of {', '.join(DARK_PROFILES)}, got {dark!r}"
+            source,
+            f"dark_profile must be 'none' or one of {', '.join(DARK_PROFILES)}, got {dark!r}",
         )
     anis = data["anisotropy"]
     if anis not in ANISOTROPIES:
-        raise _spec_error(source, f"anisotropy must be one of {', '.join(ANISOTROPIES)}, got {anis!r}")
+        raise _spec_error(
+            source, f"anisotropy must be one of {', '.join(ANISOTROPIES)}, got {anis!r}"
+        )
     params = data.get("parameters", {})
     if not isinstance(params, dict):
         raise _spec_error(source, "'parameters' must be a table of parameter tables")
@@ -147,7 +150,8 @@ def parse_spec(data, name, source):
         kind = p["prior"]
         if kind not in PRIORS:
             raise _spec_error(
-                source, f"parameter '{pname}': prior must be one of {', '.join(PRIORS)}, got {kind!r}"
+                source,
+                f"parameter '{pname}': prior must be one of {', '.join(PRIORS)}, got {kind!r}",
             )
         for req in PRIORS[kind]:
             if req not in p:
@@ -168,7 +172,9 @@ def parse_spec(data, name, source):
             raise _spec_error(
                 source, "the halo needs priors on exactly one of (m200, c200) or (rho_s, r_s)"
             )
-        missing += [s for s in SHAPE_PARAMETERS[dark] if s not in params and s not in OPTIONAL_SHAPE]
+        missing += [
+            s for s in SHAPE_PARAMETERS[dark] if s not in params and s not in OPTIONAL_SHAPE
+        ]
     if missing:
         raise _spec_error(source, f"missing prior for parameter(s) {', '.join(missing)}")
     return dataclasses.replace(spec, parameters=dict(params))

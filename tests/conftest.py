@@ -11,7 +11,13 @@ os.environ.setdefault("XDG_CONFIG_HOME", os.path.join(_TMP, "config"))
 os.environ.setdefault("ASTROPY_CACHE_DIR", os.path.join(_TMP, "astropy-cache"))
 os.environ.setdefault("ASTROPY_CONFIG_DIR", os.path.join(_TMP, "astropy-config"))
 os.environ.setdefault("MPLBACKEND", "Agg")
-for _var in ("MPLCONFIGDIR", "XDG_CACHE_HOME", "XDG_CONFIG_HOME", "ASTROPY_CACHE_DIR", "ASTROPY_CONFIG_DIR"):
+for _var in (
+    "MPLCONFIGDIR",
+    "XDG_CACHE_HOME",
+    "XDG_CONFIG_HOME",
+    "ASTROPY_CACHE_DIR",
+    "ASTROPY_CONFIG_DIR",
+):
     os.makedirs(os.environ[_var], exist_ok=True)
 
 import jax  # noqa: E402
@@ -25,7 +31,9 @@ TMP_ROOT = _TMP
 
 
 def pytest_addoption(parser):
-    parser.addoption("--run-slow", action="store_true", default=False, help="run slow calibration suites")
+    parser.addoption(
+        "--run-slow", action="store_true", default=False, help="run slow calibration suites"
+    )
 
 
 def pytest_collection_modifyitems(config, items):

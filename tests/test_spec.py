@@ -33,9 +33,18 @@ PARAMS = {
         ({**BASE, "anisotropy": "sideways", "parameters": PARAMS}, "anisotropy must be"),
         ({**BASE, "parameters": {**PARAMS, "q": {"prior": "uniform", "low": 0, "high": 1}}}, "'q'"),
         ({**BASE, "parameters": {**PARAMS, "beta": {"prior": "wide"}}}, "prior must be one of"),
-        ({**BASE, "parameters": {**PARAMS, "beta": {"prior": "uniform", "low": 1}}}, "needs 'high'"),
-        ({**BASE, "parameters": {**PARAMS, "beta": {"prior": "uniform", "low": 1, "high": 0}}}, "low < high"),
-        ({**BASE, "parameters": {k: v for k, v in PARAMS.items() if k != "c200"}}, "exactly one of"),
+        (
+            {**BASE, "parameters": {**PARAMS, "beta": {"prior": "uniform", "low": 1}}},
+            "needs 'high'",
+        ),
+        (
+            {**BASE, "parameters": {**PARAMS, "beta": {"prior": "uniform", "low": 1, "high": 0}}},
+            "low < high",
+        ),
+        (
+            {**BASE, "parameters": {k: v for k, v in PARAMS.items() if k != "c200"}},
+            "exactly one of",
+        ),
         ({**BASE, "parameters": {k: v for k, v in PARAMS.items() if k != "beta"}}, "missing prior"),
     ],
 )
