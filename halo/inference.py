@@ -6,8 +6,8 @@ From the spec, by prior kind:
 
 - ``log-uniform`` NAME in [low, high]: site ``log10_NAME`` uniform in log10.
 - ``uniform`` / ``normal``: site ``NAME``.
-- ``symmetrised-uniform``: site ``NAME_sym`` uniform in beta~ = beta / (2 - beta) (so that radial and
-  tangential anisotropy get equal prior weight, common practice); beta = 2 beta~ / (1 + beta~).
+- ``symmetrised-uniform``: site ``NAME_sym`` uniform in beta~ = beta / (2 - beta) (so that radial
+  and tangential anisotropy get equal prior weight, common practice); beta = 2 beta~ / (1 + beta~).
 - ``concentration``: site ``log10_c200`` ~ Normal(log10 c_med(M200), scatter) from the named
   mass-concentration relation; with a galactocentric distance in the satellite file the spec's
   ``subhalo_relation`` is used instead.
@@ -122,7 +122,9 @@ def sample_spec_parameters(spec, satellite):
         p = spec.parameters[name]
         kind = p["prior"]
         if kind == "log-uniform":
-            x = numpyro.sample(f"log10_{name}", dist.Uniform(np.log10(p["low"]), np.log10(p["high"])))
+            x = numpyro.sample(
+                f"log10_{name}", dist.Uniform(np.log10(p["low"]), np.log10(p["high"]))
+            )
             values[name] = 10.0**x
         elif kind == "uniform":
             values[name] = numpyro.sample(name, dist.Uniform(p["low"], p["high"]))
