@@ -152,8 +152,117 @@ def predict_cmd(
         typer.echo(f"{k}: {_fmt(v, 5)}")
 
 
+def _check_out_dir(out, overwrite):
+    from pathlib import Path
+
+    out = Path(out)
+    if out.exists() and not out.is_dir():
+        _fail(f"--out {out}: exists and is not a folder")
+    if (out / "summary.json").exists() and not overwrite:
+        _fail(f"--out {out}: already holds results; choose another folder or pass --overwrite")
+    return out
+
+
+def _positive_int(value, option):
+    if value < 1:
+        _fail(f"{option}: must be a positive integer, got {value}")
+    return value
+
+
+@app.command("fit")
+def fit_cmd(
+    catalogue: str = typer.Argument(..., help="velocity catalogue (ECSV, FITS, VOTable or CSV)"),
+    satellite: str = typer.Argument(..., help="satellite description file (TOML) or 'demo'"),
+    out: str = typer.Option(..., "--out", help="output folder"),
+    model: list[str] = typer.Option(
+        None, "--model", help="model spec name or path (repeatable; default nfw, cored)"
+    ),
+    chains: int = typer.Option(4, "--chains", help="number of chains"),
+    warmup: int = typer.Option(1000, "--warmup", help="warmup steps per chain"),
+    draws: int = typer.Option(1000, "--draws", help="kept draws per chain"),
+    seed: int = typer.Option(0, "--seed", help="random seed"),
+    column: list[str] = typer.Option(
+        None, "--column", help="column override ROLE=NAME, e.g. vlos=VHEL (repeatable)"
+    ),
+    overwrite: bool = typer.Option(False, "--overwrite", help="replace results already in --out"),
+    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+):
+    """Fit the models to a catalogue and compare each with stars alone."""
+    from halo.catalog import parse_column_overrides, read_catalogue
+    from halo.fit import DEFAULT_MODELS, FitSettings, fit
+    from halo.report import format_summary
+    from halo.satellite import read_satellite
+
+    for v, o in ((chains, "--chains"), (warmup, "--warmup"), (draws, "--draws")):
+        _positive_int(v, o)
+    out_dir = _check_out_dir(out, overwrite)
+    sat_path = _satellite_path(satellite)
+    sat = read_satellite(sat_path)
+    stars = read_catalogue(catalogue, sat, parse_column_overrides(column))
+    for note in stars.notes:
+        typer.echo(f"note: {note}", err=True)
+    for w in stars.warnings:
+        typer.echo(f"warning: {w}", err=True)
+    settings = FitSettings(chains=chains, warmup=warmup, draws=draws, seed=seed, progress=not quiet)
+    models = list(model) if model else list(DEFAULT_MODELS)
+    summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)
+    typer.echo(format_summary(summary, out_dir))
+
+
+@app.command("demo")
+def demo_cmd(
+    out: str = typer.Option("halo-demo-output", "--out", help="output folder"),
+    overwrite: bool = typer.Option(True, "--overwrite/--keep", help="replace an earlier demo run"),
+    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+):
+    """The whole job on the embedded fictional satellite and its mock catalogue."""
+    from halo.demo import run_demo
+
+    out_dir = _check_out_dir(out, overwrite)
+    typer.echo(run_demo(out_dir, progress=not quiet))
+
+
+@app.command("mock")
+def mock_cmd(
+    satellite: str = typer.Argument(..., help="satellite description file (TOML) or 'demo'"),
+    out: str = typer.Option(..., "--out", help="output catalogue (.ecsv, .fits, .vot or .csv)"),
+    model: str = typer.Option("nfw", "--model", help="model spec giving the halo and anisotropy"),
+    set_: list[str] = typer.Option(None, "--set", help="parameter value, KEY=VALUE (repeatable)"),
+    n_stars: int = typer.Option(100, "--n-stars", help="number of stars"),
+    v_sys: float = typer.Option(0.0, "--v-sys", help="systemic velocity [km/s]"),
+    errors: str = typer.Option("1,3", "--errors", help="velocity error range LO,HI [km/s]"),
+    method: str = typer.Option("df", "--method", help="df (equilibrium) or gaussian (approximate)"),
+    seed: int = typer.Option(0, "--seed", help="random seed"),
+):
+    """A mock catalogue with a known truth (written beside it as JSON)."""
+    from halo.demo import write_mock
+
+    _positive_int(n_stars, "--n-stars")
+    err = _parse_list(errors, "--errors")
+    if len(err) != 2 or err[0] > err[1]:
+        _fail("--errors: expected LO,HI with LO <= HI")
+    if method not in ("df", "gaussian"):
+        _fail(f"--method: expected df or gaussian, got {method!r}")
+    path, truth_path = write_mock(
+        _satellite_path(satellite),
+        out,
+        model,
+        _parse_set(set_),
+        n_stars=n_stars,
+        v_sys=v_sys,
+        error_range=tuple(err),
+        method=method,
+        seed=seed,
+    )
+    typer.echo(f"wrote {path} ({n_stars} stars) and its truth {truth_path}")
+
+
 def _configure_environment():
-    """Keep library caches out of HOME unless the user chose otherwise; quiet JAX."""
+    """Keep library caches out of HOME unless the user chose otherwise; quiet JAX; CPU devices
+    for parallel chains (before JAX starts)."""
+    from halo.sampling import set_host_devices
+
+    set_host_devices(8)
     tmp = os.path.join(tempfile.gettempdir(), f"halo-cache-{os.getuid()}")
     os.environ.setdefault("MPLCONFIGDIR", os.path.join(tmp, "matplotlib"))
     os.environ.setdefault("MPLBACKEND", "Agg")

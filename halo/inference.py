@@ -111,6 +111,7 @@ def sample_nuisances(satellite, v_center):
         mag = numpyro.sample("abs_mag_v", dist.Normal(mag0, dmag)) if dmag > 0 else mag0
         m_star = numpyro.deterministic("m_star", ml * 10.0 ** (-0.4 * (mag - 4.83)))
     r_e_kpc = r_half_pc * 1e-3 * jnp.sqrt(1.0 - satellite.ellipticity) * distance / d0
+    numpyro.deterministic("r_e_kpc", r_e_kpc)
     return v_sys, distance, r_e_kpc, m_star
 
 
@@ -122,17 +123,16 @@ def sample_spec_parameters(spec, satellite):
         p = spec.parameters[name]
         kind = p["prior"]
         if kind == "log-uniform":
-            x = numpyro.sample(
-                f"log10_{name}", dist.Uniform(np.log10(p["low"]), np.log10(p["high"]))
-            )
-            values[name] = 10.0**x
+            lo, hi = np.log10(p["low"]), np.log10(p["high"])
+            x = numpyro.sample(f"log10_{name}", dist.Uniform(lo, hi))
+            values[name] = numpyro.deterministic(name, 10.0**x)
         elif kind == "uniform":
             values[name] = numpyro.sample(name, dist.Uniform(p["low"], p["high"]))
         elif kind == "normal":
             values[name] = numpyro.sample(name, dist.Normal(p["mean"], p["sigma"]))
         elif kind == "symmetrised-uniform":
             s = numpyro.sample(f"{name}_sym", dist.Uniform(p["low"], p["high"]))
-            values[name] = symmetrised_to_beta(s)
+            values[name] = numpyro.deterministic(name, symmetrised_to_beta(s))
         elif kind == "fixed":
             values[name] = jnp.asarray(p["value"], dtype=jnp.float64)
         elif kind == "concentration":
@@ -142,7 +142,7 @@ def sample_spec_parameters(spec, satellite):
                 kw["distance_kpc"] = satellite.galactocentric_distance_kpc
             mean, sd = lognormal_prior(rel, values["m200"], **kw)
             x = numpyro.sample(f"log10_{name}", dist.Normal(mean, sd))
-            values[name] = 10.0**x
+            values[name] = numpyro.deterministic(name, 10.0**x)
     return values
 
 

@@ -120,7 +120,9 @@ def diagnostics(idata, var_names):
     e_name = min(bulk, key=lambda k: float(np.nanmin(bulk[k])))
     stats = idata["sample_stats"].to_dataset()
     div = int(np.asarray(stats["diverging"]).sum()) if "diverging" in stats else 0
-    bfmi = float(np.min(np.asarray(az.bfmi(idata)))) if "energy" in stats else float("nan")
+    bfmi = float("nan")
+    if "energy" in stats:
+        bfmi = float(np.min(np.asarray(az.bfmi(idata).to_dataset()["energy"])))
     rmax = float(np.nanmax(rhat[r_name]))
     return Diagnostics(
         rhat_max=rmax if np.isfinite(rmax) else float("inf"),

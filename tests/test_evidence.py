@@ -1,6 +1,7 @@
 """Evidence estimators against closed forms and against each other.
 
-- Conjugate normal model: y_i ~ N(mu, s^2), mu ~ N(m0, tau^2) has Z = N(y | m0 1, s^2 I + tau^2 1 1^T)
+- Conjugate normal model: y_i ~ N(mu, s^2), mu ~ N(m0, tau^2) has
+  Z = N(y | m0 1, s^2 I + tau^2 1 1^T)
   (e.g. Bishop 2006, Pattern Recognition and Machine Learning, eq. 2.115).
 - Bounded prior: mu ~ Uniform(a, b) gives Z = C sqrt(2 pi s^2 / n) [Phi(z_b) - Phi(z_a)] / (b - a)
   (direct integration of the Gaussian likelihood, common practice), with an extra parameter that

@@ -1,0 +1,38 @@
+"""Atomic writes: results appear whole or not at all, and nothing the user had is half-overwritten.
+
+Each writer writes to a temporary file in the destination folder and renames it into place
+(``os.replace`` is atomic on POSIX file systems).
+"""
+
+import contextlib
+import json
+import os
+import tempfile
+from pathlib import Path
+
+__all__ = ["atomic_path", "write_text", "write_json"]
+
+
+@contextlib.contextmanager
+def atomic_path(path):
+    """Yield a temporary path next to ``path``; on success rename it to ``path``."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    os.close(fd)
+    try:
+        yield Path(tmp)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+
+
+def write_text(path, text):
+    with atomic_path(path) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+
+
+def write_json(path, obj):
+    write_text(path, json.dumps(obj, indent=1, allow_nan=False) + "\n")
