@@ -255,4 +255,3 @@ def global_dispersion(mass_model, light, anis, orders=DEFAULT):
     """Luminosity-weighted sigma_los^2 over the whole system [(km/s)^2]."""
     r_top = light.r_half_2d() * 10.0**orders.hi_dex
     return aperture_dispersion(mass_model, light, anis, jnp.minimum(r_top, light.r_edge()), orders)
-

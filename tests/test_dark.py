@@ -17,7 +17,13 @@ from halo import dark
 from halo.cosmology import rho_crit
 from halo.dark import NFW, Burkert, CoreNFW, Einasto, Zhao
 
-mp.mp.dps = 30
+
+@pytest.fixture(autouse=True)
+def _mpmath_precision():
+    """30 significant digits for the mpmath references of this file (mpmath's state is global)."""
+    with mp.workdps(30):
+        yield
+
 
 RHO_C = rho_crit()  # Planck18, z = 0
 X_GRID = np.logspace(-4.0, 3.0, 15)

@@ -62,5 +62,3 @@ def test_seeded_reproducible():
     b = log_evidence(conjugate_model, mcmc.get_samples(), ["mu"], chains=1, seed=2)
     assert a.log_z == b.log_z
     assert jax.numpy.isfinite(a.log_z)
-
-

@@ -166,7 +166,6 @@ def _esg_taylor_coefficients(order=7):
     highest coefficient is unreliable); the constant term as the mean of y = 1 +- 1e-8 minus the
     curvature term. Order 7: truncation error < 1e-13 for |y - 1| < 0.02.
     """
-    mpmath.mp.dps = 60
 
     def f(y):
         d2 = 1 - y**2
@@ -174,11 +173,11 @@ def _esg_taylor_coefficients(order=7):
         b = 2 * y * (7 * y - 4 * y**3 + 3 * mpmath.pi * d2**2) + 6 * (2 * d2**3 - 2 * d2 - y**4) * x
         return mpmath.pi / (3 * d2**2) * b
 
-    c = mpmath.taylor(f, 1, order + 1, singular=True)[: order + 1]
-    h = mpmath.mpf("1e-8")
-    c[0] = (f(1 + h) + f(1 - h)) / 2 - c[2] * h**2
-    mpmath.mp.dps = 15
-    return np.array([float(v) for v in c])
+    with mpmath.workdps(60):
+        c = mpmath.taylor(f, 1, order + 1, singular=True)[: order + 1]
+        h = mpmath.mpf("1e-8")
+        c[0] = (f(1 + h) + f(1 - h)) / 2 - c[2] * h**2
+        return np.array([float(v) for v in c])
 
 
 _ESG_SERIES = _esg_taylor_coefficients()
