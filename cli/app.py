@@ -258,15 +258,14 @@ def mock_cmd(
 
 
 def _configure_environment():
-    """Keep library caches out of HOME unless the user chose otherwise; quiet JAX; CPU devices
-    for parallel chains (before JAX starts)."""
-    from halo.sampling import set_host_devices
-
-    set_host_devices(8)
+    """Keep library caches out of HOME unless the user chose otherwise; quiet JAX."""
     tmp = os.path.join(tempfile.gettempdir(), f"halo-cache-{os.getuid()}")
     os.environ.setdefault("MPLCONFIGDIR", os.path.join(tmp, "matplotlib"))
     os.environ.setdefault("MPLBACKEND", "Agg")
     os.environ.setdefault("JAX_PLATFORMS", "cpu")
+    # compiled programs are kept between runs (reruns skip most of the compilation)
+    os.environ.setdefault("JAX_COMPILATION_CACHE_DIR", os.path.join(tmp, "jax"))
+    os.environ.setdefault("JAX_PERSISTENT_CACHE_MIN_COMPILE_TIME_SECS", "0.5")
     os.environ.setdefault("TF_CPP_MIN_LOG_LEVEL", "3")
 
 

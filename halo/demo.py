@@ -175,11 +175,14 @@ def write_mock(satellite_path, out, model, values, *, n_stars, v_sys, error_rang
         k: (None if isinstance(v, float) and math.isinf(v) else v) for k, v in values.items()
     }
     table = mock.table
-    table.meta["truth"] = json.loads(json.dumps(truth, default=float).replace("Infinity", "null"))
+    truth = json.loads(json.dumps(truth, default=float).replace("Infinity", "null"))
+    table.meta.clear()
+    if fmt == "ascii.ecsv":  # only ECSV keeps a nested record in its header
+        table.meta["truth"] = truth
     with atomic_path(out) as tmp:
         table.write(str(tmp), format=fmt, overwrite=True)
     truth_path = out.with_suffix(out.suffix + ".truth.json")
-    write_json(truth_path, table.meta["truth"])
+    write_json(truth_path, truth)
     return out, truth_path
 
 

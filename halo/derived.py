@@ -96,6 +96,10 @@ def derive(spec, satellite, samples, *, sigma_angles_deg, rng=None, batch=1000):
         out = {
             "r_half_3d_pc": r3 * 1e3,
             "m_half_msun": model.mass(r3),
+            # beside the closed-form estimators: M(< R_e) (Walker et al. 2009) and
+            # M(< 1.8 R_e) (Errani et al. 2018), R_e the circularised projected half-light radius
+            "m_re_msun": model.mass(re),
+            "m_1p8re_msun": model.mass(1.8 * re),
             "mass_total_msun": model.mass(radii),
             "density_total": model.density(radii),
             "mass_stars_msun": vals["stellar_mass"] * light.enclosed_3d(radii),

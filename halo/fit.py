@@ -17,6 +17,7 @@ import datetime
 import hashlib
 import sys
 import time
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -134,7 +135,11 @@ def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, ou
         seed=settings.seed,
         progress=(lambda m: _say(f"[{name}] {m}", settings)),
     )
-    loo = az.loo(idata, pointwise=True)
+    with warnings.catch_warnings(record=True) as caught:
+        # arviz warns about large Pareto k; the summary reports them per model instead
+        warnings.simplefilter("always")
+        loo = az.loo(idata, pointwise=True)
+    loo_warnings = [str(w.message).split(".")[0] for w in caught]
     _say(f"[{name}] derived quantities", settings)
     der = derive(
         spec,
@@ -157,6 +162,7 @@ def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, ou
         "derived": der,
         "time_s": time.perf_counter() - t0,
         "sampling_time_s": t_sample,
+        "loo_warnings": loo_warnings,
     }
 
 
@@ -172,6 +178,8 @@ def _summarise_model(res, settings):
     derived = {
         "m_half_msun": quantiles(der["m_half_msun"]),
         "r_half_3d_pc": quantiles(der["r_half_3d_pc"]),
+        "m_re_msun": quantiles(der["m_re_msun"]),
+        "m_1p8re_msun": quantiles(der["m_1p8re_msun"]),
         "ml_half_v": quantiles(der["ml_half_v"]) if "ml_half_v" in der else None,
     }
     if "log10_j" in der:
@@ -199,6 +207,8 @@ def _summarise_model(res, settings):
     diag = res["diagnostics"]
     loo = res["loo"]
     k = np.asarray(loo.pareto_k)
+    # arviz's threshold for reliable PSIS (Vehtari et al. 2024, JMLR 25, 72)
+    good_k = min(1 - 1 / np.log10(loo.n_samples), 0.7)
     return {
         "converged": bool(diag.converged),
         "problems": diag.problems(),
@@ -214,7 +224,9 @@ def _summarise_model(res, settings):
             "elpd": float(loo.elpd),
             "se": float(loo.se),
             "pareto_k_max": float(np.max(k)),
-            "n_pareto_k_above_0.7": int(np.sum(k > 0.7)),
+            "pareto_k_threshold": float(good_k),
+            "n_pareto_k_above_threshold": int(np.sum(k > good_k)),
+            "warnings": res["loo_warnings"],
         },
         "time_s": res["time_s"],
     }

@@ -97,10 +97,12 @@ def format_summary(summary, out_dir=None):
                 f"{c['ln_bayes_factor_err']:.2f}, delta ELPD = {c['delta_elpd']:.1f} +- "
                 f"{c['delta_elpd_se']:.1f}: {c['verdict']}"
             )
-        if m["loo"]["pareto_k_max"] is not None and m["loo"]["pareto_k_max"] > 0.7:
+        loo = m["loo"]
+        if loo["n_pareto_k_above_threshold"]:
             lines.append(
-                f"  PSIS-LOO warning: {m['loo']['n_pareto_k_above_0.7']} stars with "
-                f"Pareto k > 0.7 (max {m['loo']['pareto_k_max']:.2f})"
+                f"  PSIS-LOO warning: {loo['n_pareto_k_above_threshold']} stars with Pareto k > "
+                f"{loo['pareto_k_threshold']:.2f} (max {loo['pareto_k_max']:.2f}): their LOO "
+                "terms are unreliable"
             )
         for p in m.get("problems", []):
             lines.append(f"  *** {p}")
