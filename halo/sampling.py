@@ -65,7 +65,7 @@ def run_nuts(
     seed=0,
     progress=True,
     target_accept=0.95,
-    max_tree_depth=10,
+    max_tree_depth=8,
 ):
     """Run NUTS on ``model`` and return the numpyro MCMC object (samples, extra fields).
 

@@ -12,6 +12,7 @@ import jax
 import numpy as np
 import numpyro
 import numpyro.distributions as dist
+import pytest
 from scipy import stats
 
 from halo.evidence import log_evidence
@@ -62,3 +63,41 @@ def test_seeded_reproducible():
     b = log_evidence(conjugate_model, mcmc.get_samples(), ["mu"], chains=1, seed=2)
     assert a.log_z == b.log_z
     assert jax.numpy.isfinite(a.log_z)
+
+
+def test_bridge_agrees_with_nested_sampling_on_a_jeans_model():
+    # two independent estimators of the same evidence: bridge sampling from NUTS draws (Meng &
+    # Wong 1996) and nested sampling (dynesty; Skilling 2006, Bayesian Analysis 1, 833)
+    pytest.importorskip("dynesty")
+    from halo.catalog import stars_from_table
+    from halo.evidence import nested_sampling_evidence
+    from halo.fit import _latent_sites
+    from halo.inference import make_fit_data, make_model
+    from halo.mock import make_mock
+    from halo.satellite import parse_satellite
+    from halo.spec import load_spec
+
+    sat = parse_satellite(
+        {
+            "name": "x",
+            "ra_deg": 10.0,
+            "dec_deg": 5.0,
+            "distance_kpc": 30.0,
+            "distance_err_kpc": 1.5,
+            "r_half_pc": 20.0,
+            "r_half_err_pc": 2.0,
+            "stellar_mass_msun": 3e5,
+            "stellar_mass_err_msun": 6e4,
+        }
+    )
+    mock = make_mock(sat, None, n_stars=40, v_sys=5.0, error_range_kms=(0.5, 1.0), seed=4)
+    stars = stars_from_table(mock.table, sat)
+    model = make_model(
+        load_spec("stars-only"), sat, make_fit_data(stars.v, stars.v_err, stars.radius_deg)
+    )
+    sites = _latent_sites(model)
+    mcmc = run_nuts(model, chains=2, warmup=500, draws=1500, seed=1, progress=False)
+    bridge = log_evidence(model, mcmc.get_samples(), sites, chains=2, seed=2)
+    log_z, err = nested_sampling_evidence(model, sites, nlive=300, seed=3)
+    tol = 3 * np.hypot(bridge.log_z_err, err) + 0.05
+    assert abs(bridge.log_z - log_z) < tol, (bridge, log_z, err)
