@@ -139,11 +139,17 @@ def unconstrained_draws(model, samples, site_names):
     return flat, layout
 
 
-def log_evidence(model, samples, site_names, *, chains, seed=0, progress=None, batch=512):
-    """Bridge-sampling ln Z of a numpyro ``model`` from its posterior ``samples``."""
+def log_evidence(model, samples, site_names, *, chains, seed=0, progress=False, batch=512):
+    """Bridge-sampling ln Z of a numpyro ``model`` from its posterior ``samples``.
+
+    With ``progress`` a bar on stderr counts the density evaluations (posterior and proposal).
+    """
+    import sys
+
     import jax
     import jax.numpy as jnp
     from numpyro.infer.util import potential_energy
+    from tqdm.auto import tqdm
 
     flat, layout = unconstrained_draws(model, samples, site_names)
 
@@ -158,9 +164,19 @@ def log_evidence(model, samples, site_names, *, chains, seed=0, progress=None, b
     def log_q_batch(xs):
         return jax.vmap(lambda x: -potential_energy(model, (), {}, unflatten(x)))(xs)
 
+    bar = tqdm(
+        total=2 * len(flat) - len(flat) // 2,
+        desc="evidence",
+        unit="pt",
+        file=sys.stderr,
+        disable=not progress,
+        mininterval=0.5,
+    )
+
     def log_q(xs):
         out = []
         for k in range(0, len(xs), batch):
+            bar.update(min(batch, len(xs) - k))
             chunk = np.asarray(xs[k : k + batch])
             pad = batch - len(chunk)
             if pad:
@@ -168,7 +184,10 @@ def log_evidence(model, samples, site_names, *, chains, seed=0, progress=None, b
             out.append(np.asarray(log_q_batch(jnp.asarray(chunk)))[: batch - pad])
         return np.concatenate(out)
 
-    return bridge_sampling(log_q, flat, seed=seed, chains=chains, progress=progress)
+    try:
+        return bridge_sampling(log_q, flat, seed=seed, chains=chains)
+    finally:
+        bar.close()
 
 
 def nested_sampling_evidence(model, site_names, *, nlive=300, seed=0, dlogz=0.05):

@@ -133,7 +133,7 @@ def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, ou
         latent,
         chains=settings.chains,
         seed=settings.seed,
-        progress=(lambda m: _say(f"[{name}] {m}", settings)),
+        progress=settings.progress,
     )
     with warnings.catch_warnings(record=True) as caught:
         # arviz warns about large Pareto k; the summary reports them per model instead

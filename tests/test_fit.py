@@ -206,3 +206,47 @@ def test_cli_fit_runs_and_protects_results(tmp_path, capsys):
     bad[bad.index(str(out))] = str(tmp_path / "other")
     assert main(bad) == 2
     assert "NOPE" in capsys.readouterr().err
+
+
+def test_cli_mock_writes_catalogue_and_truth(tmp_path, capsys):
+    out = tmp_path / "mock.ecsv"
+    args = [
+        "mock",
+        "demo",
+        "--out",
+        str(out),
+        "--model",
+        "cored",
+        "--set",
+        "m200=1e9",
+        "--set",
+        "c200=15",
+        "--set",
+        "r_c=0.05",
+        "--set",
+        "n=1",
+        "--n-stars",
+        "40",
+        "--v-sys",
+        "20",
+        "--seed",
+        "4",
+    ]
+    assert main(args) == 0, capsys.readouterr().err
+    table = Table.read(out, format="ascii.ecsv")
+    assert len(table) == 40 and {"ra", "dec", "vlos", "vlos_err"} <= set(table.colnames)
+    truth = json.loads(out.with_suffix(".ecsv.truth.json").read_text())
+    assert truth["model"] == "cored" and truth["df_physical"] is True
+    assert main(args) == 2  # never overwrites
+    assert "exists" in capsys.readouterr().err
+    bad = [
+        "mock",
+        "demo",
+        "--out",
+        str(tmp_path / "m.txt"),
+        "--set",
+        "m200=1e9",
+        "--set",
+        "c200=15",
+    ]
+    assert main(bad) == 2
