@@ -221,7 +221,10 @@ def sample_orbits(pop, n, rng):
         parts.append(Orbits(*(getattr(orb, f.name)[keep] for f in dataclasses.fields(Orbits))))
         have += int(keep.sum())
     return Orbits(
-        *(np.concatenate([getattr(p, f.name) for p in parts])[:n] for f in dataclasses.fields(Orbits))
+        *(
+            np.concatenate([getattr(p, f.name) for p in parts])[:n]
+            for f in dataclasses.fields(Orbits)
+        )
     )
 
 
