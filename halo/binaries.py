@@ -85,8 +85,8 @@ class BinaryPopulation:
 
     Notes
     -----
-    Orientation: cos i ~ Uniform(-1, 1) (isotropic), argument of periastron omega ~ Uniform(0, 2 pi),
-    mean anomaly at t = 0 ~ Uniform(0, 2 pi) (random phase).
+    Orientation: cos i ~ Uniform(-1, 1) (isotropic), argument of periastron
+    omega ~ Uniform(0, 2 pi), mean anomaly at t = 0 ~ Uniform(0, 2 pi) (random phase).
 
     References
     ----------
@@ -283,7 +283,7 @@ def los_velocity(orbits, t_days=0.0):
     M(t) = M0 + 2 pi t / P;  M = E - e sin E;
     f = 2 atan2(sqrt(1 + e) sin(E/2), sqrt(1 - e) cos(E/2));
     v = K [cos(omega + f) + e cos omega]  (e.g. Hilditch 2001, An Introduction to Close Binary
-    Stars, eq. 2.45).
+    Stars, ch. 2 [memory]).
     """
     t = np.asarray(t_days, dtype=float)
     mean = orbits.mean_anomaly0 + 2 * np.pi * t / orbits.period_days
@@ -329,7 +329,7 @@ class BinaryMixture:
             "description": "scale mixture of zero-mean Gaussians for the single-epoch binary "
             "line-of-sight velocity: P_b(v) = sum_k w_k N(v | 0, s_k^2); regenerate with "
             "`python -m halo.binaries --regenerate`",
-            "scales_kms": [float(f"{s:.6g}") for s in self.scales],
+            "scales_kms": [float(s) for s in self.scales],
             "weights": [float(f"{w:.10g}") if w > 1e-15 else 0.0 for w in self.weights],
             "population": self.population.to_dict(),
             "n_samples": int(self.n_samples),
@@ -381,7 +381,9 @@ def fit_mixture(
         each bin is represented by the mean |v| of its members (weighted EM). With 4000 bins the
         bins are < 0.003 dex wide, far below the ~0.27 dex spacing of the scales.
     max_iter, tol : int, float
-        EM stops when the mean log-likelihood per star changes by less than ``tol``.
+        EM stops when the mean log-likelihood per star changes by less than ``tol``. Neighbouring
+        weights are nearly degenerate and converge slowly, but the distribution itself converges
+        fast: its CDF changes by < 1e-3 between 1000 iterations and convergence (tested).
 
     Returns
     -------

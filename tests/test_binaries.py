@@ -23,7 +23,8 @@ def mc_velocities():
 
 
 def test_k_unit_against_astropy():
-    # K = (2 pi G / P)^(1/3) m2 sin i / (m_tot^(2/3) sqrt(1 - e^2)) (e.g. Hilditch 2001, eq. 2.51)
+    # K = (2 pi G / P)^(1/3) m2 sin i / (m_tot^(2/3) sqrt(1 - e^2))
+    # (Hilditch 2001, An Introduction to Close Binary Stars, ch. 2 [memory])
     k_unit = ((2 * np.pi * const.G * u.Msun / u.day) ** (1 / 3)).to_value(u.km / u.s)
     assert b.K_UNIT_KMS == pytest.approx(k_unit, rel=2e-8)
     assert round(k_unit, 1) == 212.9  # the constant quoted in REFERENCES [computed]
@@ -233,3 +234,13 @@ def test_log_convolved_density_jax():
     assert batch.shape == (2,) and np.all(np.isfinite(batch))
     # zero weights (cached components at 29-100 km/s) do not produce NaN gradients
     assert np.all(np.isfinite(np.asarray(g)))
+
+
+def test_mixture_fit_converges_in_bins_and_iterations():
+    # documented resolution knobs: histogram bins and EM iterations (CDF of |v| is what matters)
+    x = np.geomspace(0.01, 50, 60)
+    ref = b.fit_mixture(n=100_000, seed=4, log_bins=8000, max_iter=50_000, tol=0)
+    coarse_bins = b.fit_mixture(n=100_000, seed=4, log_bins=1000)
+    few_iter = b.fit_mixture(n=100_000, seed=4, max_iter=1000, tol=0)
+    assert np.max(np.abs(coarse_bins.cdf_abs(x) - ref.cdf_abs(x))) < 1e-3
+    assert np.max(np.abs(few_iter.cdf_abs(x) - ref.cdf_abs(x))) < 1e-3
