@@ -185,6 +185,11 @@ def fit_cmd(
         None, "--column", help="column override ROLE=NAME, e.g. vlos=VHEL (repeatable)"
     ),
     overwrite: bool = typer.Option(False, "--overwrite", help="replace results already in --out"),
+    binaries: bool = typer.Option(
+        False,
+        "--binaries/--no-binaries",
+        help="marginalise each star over binary orbital motion (free binary fraction)",
+    ),
     quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
 ):
     """Fit the models to a catalogue and compare each with stars alone."""
@@ -203,7 +208,14 @@ def fit_cmd(
         typer.echo(f"note: {note}", err=True)
     for w in stars.warnings:
         typer.echo(f"warning: {w}", err=True)
-    settings = FitSettings(chains=chains, warmup=warmup, draws=draws, seed=seed, progress=not quiet)
+    settings = FitSettings(
+        chains=chains,
+        warmup=warmup,
+        draws=draws,
+        seed=seed,
+        progress=not quiet,
+        binaries=binaries,
+    )
     models = list(model) if model else list(DEFAULT_MODELS)
     summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)
     typer.echo(format_summary(summary, out_dir))

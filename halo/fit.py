@@ -45,14 +45,11 @@ class FitSettings:
     draws: int = 1000
     seed: int = 0
     progress: bool = True
+    binaries: bool = False
 
     def as_dict(self):
-        return {
-            "chains": self.chains,
-            "warmup": self.warmup,
-            "draws": self.draws,
-            "seed": self.seed,
-        }
+        keys = ("chains", "warmup", "draws", "seed", "binaries")
+        return {k: getattr(self, k) for k in keys}
 
 
 def verdict(ln_bf, ln_bf_err=0.0):
@@ -104,7 +101,12 @@ def _estimators(stars, satellite):
 def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, out_dir):
     import arviz as az
 
-    model = make_model(spec, satellite, data)
+    mixture = None
+    if settings.binaries:
+        from halo.binaries import load_mixture
+
+        mixture = load_mixture()
+    model = make_model(spec, satellite, data, binaries=mixture)
     t0 = time.perf_counter()
     _say(
         f"[{name}] sampling: {settings.chains} chains x {settings.warmup} warmup + "
@@ -169,7 +171,13 @@ def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, ou
 def _summarise_model(res, settings):
     der = res["derived"]
     params = {}
-    for k in list(res["spec"].parameters) + ["m_star", "distance", "r_half_pc", "v_sys"]:
+    for k in list(res["spec"].parameters) + [
+        "m_star",
+        "distance",
+        "r_half_pc",
+        "v_sys",
+        "f_binary",
+    ]:
         if k in res["samples"]:
             params[k] = quantiles(res["samples"][k])
     for k in res["latent"]:

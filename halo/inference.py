@@ -152,10 +152,21 @@ def sigma_at_stars(sig_grid, data):
     return jnp.exp(ls[data.idx] * (1.0 - data.w) + ls[data.idx + 1] * data.w)
 
 
-def make_model(spec, satellite, data, orders=FAST):
-    """A numpyro model (no arguments) for ``spec`` fitted to ``data`` (:class:`FitData`)."""
+def make_model(spec, satellite, data, orders=FAST, binaries=None):
+    """A numpyro model (no arguments) for ``spec`` fitted to ``data`` (:class:`FitData`).
+
+    ``binaries``: None, or a :class:`halo.binaries.BinaryMixture` (the line-of-sight velocity
+    distribution of binary orbital motion as a scale mixture of Gaussians). With it, each star's
+    likelihood marginalises over binarity (Minor et al. 2010, ApJ 721, 1142, single-epoch form):
+    (1 - f_b) N(v | v_sys, s^2) + f_b sum_k w_k N(v | v_sys, s^2 + s_k^2), s^2 = sigma_los^2 +
+    err^2, with the binary fraction ``f_binary`` uniform in [0, 1]. Stars with several epochs
+    enter through their mean velocity (the multi-epoch likelihood is not in yet).
+    """
     rho_c = rho_crit()
     v_center = float(np.median(np.asarray(data.v)))
+    if binaries is not None:
+        b_scales = jnp.concatenate([jnp.zeros(1), jnp.asarray(binaries.scales)])
+        b_weights = jnp.asarray(binaries.weights)
 
     def model():
         v_sys, distance, r_e, m_star = sample_nuisances(satellite, v_center)
@@ -166,7 +177,17 @@ def make_model(spec, satellite, data, orders=FAST):
         anis = build_anisotropy(spec, values)
         radii = distance * jnp.tan(data.grid_theta)
         sig = sigma_at_stars(sigma_los(mass_model, light, anis, radii, orders), data)
-        scale = jnp.sqrt(sig**2 + data.v_err**2)
-        numpyro.sample("v", dist.Normal(v_sys, scale), obs=data.v)
+        var = sig**2 + data.v_err**2
+        if binaries is None:
+            numpyro.sample("v", dist.Normal(v_sys, jnp.sqrt(var)), obs=data.v)
+            return
+        f_b = numpyro.sample("f_binary", dist.Uniform(0.0, 1.0))
+        probs = jnp.concatenate([jnp.atleast_1d(1.0 - f_b), f_b * b_weights])
+        scales = jnp.sqrt(var[:, None] + b_scales[None, :] ** 2)
+        comps = dist.Normal(v_sys, scales)
+        mix = dist.MixtureSameFamily(
+            dist.Categorical(probs=jnp.broadcast_to(probs, scales.shape)), comps
+        )
+        numpyro.sample("v", mix, obs=data.v)
 
     return model
