@@ -142,6 +142,7 @@ def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, ou
         warnings.simplefilter("always")
         loo = az.loo(idata, pointwise=True)
     loo_warnings = [str(w.message).split(".")[0] for w in caught]
+    binary_prob = _binary_probability(model, samples) if mixture is not None else None
     _say(f"[{name}] derived quantities", settings)
     der = derive(
         spec,
@@ -165,7 +166,62 @@ def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, ou
         "time_s": time.perf_counter() - t0,
         "sampling_time_s": t_sample,
         "loo_warnings": loo_warnings,
+        "binary_prob": binary_prob,
     }
+
+
+def _binary_probability(model, samples, batch=500):
+    """Posterior mean probability that each star is a binary.
+
+    Per draw, p_i = f_b L1_i / ((1 - f_b) L0_i + f_b L1_i), with L0 (L1) the star's likelihood
+    as a single star (as a binary), obtained by re-evaluating the likelihood at f_binary = 0 and 1.
+    """
+    import jax.numpy as jnp
+    from numpyro.infer.util import log_likelihood
+
+    f_b = np.asarray(samples["f_binary"])
+    out = []
+    for k in range(0, len(f_b), batch):
+        sub = {key: jnp.asarray(v[k : k + batch]) for key, v in samples.items()}
+        ll = [
+            np.asarray(
+                log_likelihood(model, {**sub, "f_binary": jnp.full(len(sub["f_binary"]), x)})["v"]
+            )
+            for x in (0.0, 1.0)
+        ]
+        fb = f_b[k : k + batch, None]
+        with np.errstate(divide="ignore"):
+            a = np.log1p(-fb) + ll[0]
+            b = np.log(fb) + ll[1]
+        out.append(np.exp(b - np.logaddexp(a, b)))
+    return np.concatenate(out).mean(axis=0)
+
+
+def _write_members(path, stars, results, names, satellite):
+    """members.ecsv: per star id, member_prob, binary_prob, radius used and epoch count."""
+    from astropy.table import Table
+
+    from halo.fileio import atomic_path
+
+    dark = [n for n in names if n != STARS_ONLY]
+    ref = dark[0] if dark else STARS_ONLY
+    t = Table()
+    t["id"] = np.asarray(stars.id).astype(str)
+    mp = stars.member_prob
+    t["member_prob"] = np.ones(stars.n_stars) if mp is None else np.asarray(mp, dtype=float)
+    bp = results[ref]["binary_prob"]
+    t["binary_prob"] = np.full(stars.n_stars, np.nan) if bp is None else bp
+    t["radius_deg"] = np.asarray(stars.radius_deg)
+    t["radius_pc"] = np.tan(np.radians(np.asarray(stars.radius_deg))) * satellite.distance_kpc * 1e3
+    t["n_epochs"] = np.asarray(stars.n_epochs)
+    t.meta["model"] = ref
+    t.meta["note"] = (
+        "member_prob: 1 (no foreground model yet) or the catalogue's member_prob column; "
+        "binary_prob: posterior mean, NaN when binaries are not modelled; radius_pc: "
+        "circularised, at the satellite file's distance"
+    )
+    with atomic_path(path) as tmp:
+        t.write(str(tmp), format="ascii.ecsv", overwrite=True)
 
 
 def _summarise_model(res, settings):
@@ -329,5 +385,6 @@ def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satelli
     figures = make_figures(results, stars, satellite, sig_angles, out_dir / "figures", summary)
     summary["figures"] = [str(p.relative_to(out_dir)) for p in figures]
     write_summary_table(summary, out_dir / "summary.ecsv")
+    _write_members(out_dir / "members.ecsv", stars, results, names, satellite)
     write_json(out_dir / "summary.json", summary)
     return summary

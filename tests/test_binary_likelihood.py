@@ -10,6 +10,7 @@ numbers]. Both sides are kept: without the binary term the same data show a spur
 
 import numpy as np
 import pytest
+from astropy.table import Table
 
 from halo.binaries import BinaryPopulation, los_velocity, sample_orbits
 from halo.catalog import stars_from_table
@@ -53,12 +54,13 @@ def fits(tmp_path_factory):
         velocity_offsets=_binary_offsets(0.5, 7),
     )
     stars = stars_from_table(mock.table, sat, source="binary-cluster")
-    out = {}
+    out = {"offsets": _binary_offsets(0.5, 7)(None, np.arange(80), None), "dirs": {}}
     for flag in (False, True):
         settings = FitSettings(
             chains=2, warmup=400, draws=400, seed=1, progress=False, binaries=flag
         )
-        out[flag] = fit(stars, sat, tmp_path_factory.mktemp(f"b{flag}"), ["nfw"], settings)
+        out["dirs"][flag] = tmp_path_factory.mktemp(f"b{flag}")
+        out[flag] = fit(stars, sat, out["dirs"][flag], ["nfw"], settings)
         c = out[flag]["models"]["nfw"]["vs_stars_only"]
         print(
             f"binaries {flag}: ln B = {c['ln_bayes_factor']:.2f} +- {c['ln_bayes_factor_err']:.2f}"
@@ -77,3 +79,16 @@ def test_no_strong_evidence_with_binaries(fits):
     fb = fits[True]["models"]["nfw"]["parameters"]["f_binary"]
     assert fb["p2.5"] < 0.5 < fb["p97.5"], fb
     assert fits[True]["settings"]["binaries"] is True
+
+
+def test_members_file_ranks_binaries(fits):
+    members = Table.read(fits["dirs"][True] / "members.ecsv", format="ascii.ecsv")
+    assert set(members.colnames) >= {"id", "member_prob", "binary_prob", "radius_pc", "n_epochs"}
+    order = np.argsort(members["id"].astype(int))
+    p = np.asarray(members["binary_prob"])[order]
+    big = np.abs(fits["offsets"]) > 3.0  # orbital velocity far above the errors and dispersion
+    single = fits["offsets"] == 0.0
+    assert big.sum() >= 2
+    assert np.min(p[big]) > 0.9 and np.median(p[single]) < 0.5
+    off = Table.read(fits["dirs"][False] / "members.ecsv", format="ascii.ecsv")
+    assert np.all(np.isnan(off["binary_prob"]))
