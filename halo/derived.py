@@ -22,6 +22,7 @@ from halo.constants import DEG
 from halo.cosmology import rho_crit
 from halo.jeans import FAST, sigma_los
 from halo.jfactor import log10_d, log10_j
+from halo.quantiles import quantiles
 
 __all__ = [
     "STANDARD_ANGLES",
@@ -34,24 +35,6 @@ __all__ = [
 
 STANDARD_ANGLES = (0.1, 0.2, 0.5)
 PROFILE_RADII_PC = (5.0, 10.0, 20.0, 50.0, 100.0, 200.0, 500.0, 1000.0)
-
-
-def quantiles(x):
-    """The summary of a sample: median, 16/84 and 2.5/97.5 percentiles, mean and std."""
-    x = np.asarray(x, dtype=float).ravel()
-    x = x[np.isfinite(x)]
-    if x.size == 0:
-        return None
-    p = np.percentile(x, [50, 16, 84, 2.5, 97.5])
-    return {
-        "median": float(p[0]),
-        "p16": float(p[1]),
-        "p84": float(p[2]),
-        "p2.5": float(p[3]),
-        "p97.5": float(p[4]),
-        "mean": float(np.mean(x)),
-        "std": float(np.std(x)),
-    }
 
 
 def parameter_values(spec, samples):

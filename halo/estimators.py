@@ -16,6 +16,7 @@ import numpy as np
 from scipy import optimize
 
 from halo.constants import G
+from halo.quantiles import quantiles
 
 __all__ = [
     "walker09_mass",
@@ -277,17 +278,7 @@ def propagate(
     rng = np.random.default_rng(seed)
     sig = _positive_normal(rng, sigma_los, sigma_err, n_samples)
     rad = _positive_normal(rng, r_e, r_e_err, n_samples)
-    mass = np.asarray(func(sig, rad), dtype=float)
-    q = np.percentile(mass, [50.0, 16.0, 84.0, 2.5, 97.5])
-    return {
-        "median": float(q[0]),
-        "p16": float(q[1]),
-        "p84": float(q[2]),
-        "p2.5": float(q[3]),
-        "p97.5": float(q[4]),
-        "mean": float(mass.mean()),
-        "std": float(mass.std()),
-    }
+    return quantiles(func(sig, rad))
 
 
 def _positive_normal(rng, mean, sd, n):
