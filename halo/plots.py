@@ -36,6 +36,13 @@ def binned_dispersion(radius, v, v_err, per_bin=None):
     return tuple(np.array(c) for c in zip(*out, strict=True))
 
 
+def _band(ax, x, draws, colour, label):
+    """Median line and 68% band over the draws (axis 0)."""
+    q = np.percentile(draws, [16, 50, 84], axis=0)
+    ax.fill_between(x, q[0], q[2], color=colour, alpha=0.3)
+    ax.plot(x, q[1], color=colour, label=label)
+
+
 def _save(fig, path):
     with atomic_path(path) as tmp:
         fig.savefig(tmp, format="png", dpi=110, bbox_inches="tight")
@@ -67,10 +74,7 @@ def make_figures(results, stars, satellite, sigma_angles, folder, summary):
     ax.errorbar(rb, sb, yerr=[sb - lo, hi - sb], fmt="ko", label="data (binned, ML)", zorder=5)
     r_grid = np.tan(np.radians(sigma_angles)) * d0 * 1e3
     for n in names:
-        s = results[n]["derived"]["sigma_los_kms"]
-        q = np.percentile(s, [16, 50, 84], axis=0)
-        ax.fill_between(r_grid, q[0], q[2], color=colours[n], alpha=0.3)
-        ax.plot(r_grid, q[1], color=colours[n], label=n)
+        _band(ax, r_grid, results[n]["derived"]["sigma_los_kms"], colours[n], n)
     ax.set_xscale("log")
     ax.set_xlabel("projected radius R [pc] (circularised, at the catalogue distance)")
     ax.set_ylabel(r"$\sigma_{\rm los}$ [km/s]")
@@ -84,10 +88,7 @@ def make_figures(results, stars, satellite, sigma_angles, folder, summary):
     fig, ax = plt.subplots(figsize=(6, 4.2))
     radii = np.asarray(PROFILE_RADII_PC)
     for n in names:
-        m = results[n]["derived"]["mass_total_msun"]
-        q = np.percentile(m, [16, 50, 84], axis=0)
-        ax.fill_between(radii, q[0], q[2], color=colours[n], alpha=0.3)
-        ax.plot(radii, q[1], color=colours[n], label=f"{n} (total)")
+        _band(ax, radii, results[n]["derived"]["mass_total_msun"], colours[n], f"{n} (total)")
     ms = results[names[0]]["derived"]["mass_stars_msun"]
     ax.plot(radii, np.median(ms, axis=0), "k--", label="stars")
     est = summary["estimators"]
