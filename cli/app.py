@@ -186,9 +186,16 @@ def fit_cmd(
     ),
     overwrite: bool = typer.Option(False, "--overwrite", help="replace results already in --out"),
     binaries: bool = typer.Option(
-        False,
+        True,
         "--binaries/--no-binaries",
-        help="marginalise each star over binary orbital motion (free binary fraction)",
+        help="marginalise each star over binary orbital motion, epochs used jointly (free "
+        "binary fraction); on by default",
+    ),
+    foreground: bool | None = typer.Option(
+        None,
+        "--foreground/--no-foreground",
+        help="mix members with a broad non-member velocity distribution; default: on when the "
+        "catalogue reaches beyond the members (member_prob column or far velocity outliers)",
     ),
     quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
 ):
@@ -215,6 +222,7 @@ def fit_cmd(
         seed=seed,
         progress=not quiet,
         binaries=binaries,
+        foreground="auto" if foreground is None else foreground,
     )
     models = list(model) if model else list(DEFAULT_MODELS)
     summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)

@@ -28,7 +28,7 @@ from halo.errors import InputError
 from halo.estimators import ESTIMATOR_RADIUS, dispersion_ml, propagate
 from halo.evidence import log_evidence
 from halo.fileio import atomic_path, write_json
-from halo.inference import make_fit_data, make_model
+from halo.inference import Foreground, make_fit_data, make_model
 from halo.sampling import diagnostics, run_nuts
 from halo.spec import load_spec
 
@@ -45,11 +45,48 @@ class FitSettings:
     draws: int = 1000
     seed: int = 0
     progress: bool = True
-    binaries: bool = False
+    binaries: bool = True
+    foreground: bool | str = "auto"  # True, False or "auto" (see foreground_decision)
+    n_orbits: int = 20_000  # Monte Carlo orbits per multi-epoch star
 
     def as_dict(self):
-        keys = ("chains", "warmup", "draws", "seed", "binaries")
+        keys = ("chains", "warmup", "draws", "seed", "binaries", "foreground")
         return {k: getattr(self, k) for k in keys}
+
+
+#: a star further than this many robust widths from the median velocity is taken as a sign that
+#: the catalogue reaches beyond the members (common practice: 5 sigma clipping)
+FOREGROUND_CLIP = 5.0
+#: ... and further than this [km/s], so that binaries of a cold system do not trigger it
+FOREGROUND_MIN_OFFSET_KMS = 25.0
+
+
+def foreground_decision(stars):
+    """(on, reason): whether the catalogue reaches beyond the members.
+
+    On when the catalogue carries a ``member_prob`` column with values below 1, or when any star
+    lies more than FOREGROUND_CLIP robust widths sqrt(s^2 + err^2) (s = 1.4826 MAD of the
+    velocities, common practice) and more than FOREGROUND_MIN_OFFSET_KMS from the median.
+    """
+    if stars.member_prob is not None and np.any(np.asarray(stars.member_prob) < 1):
+        return True, "the catalogue's member_prob column has values below 1"
+    v = np.asarray(stars.v, dtype=float)
+    med = np.median(v)
+    s = 1.4826 * np.median(np.abs(v - med))
+    off = np.abs(v - med)
+    far = (off > FOREGROUND_CLIP * np.sqrt(s**2 + np.asarray(stars.v_err) ** 2)) & (
+        off > FOREGROUND_MIN_OFFSET_KMS
+    )
+    if far.any():
+        return True, (
+            f"{int(far.sum())} star(s) lie more than {FOREGROUND_CLIP:g} robust widths and "
+            f"{FOREGROUND_MIN_OFFSET_KMS:g} km/s from the median velocity"
+        )
+    return False, (
+        "every star lies within "
+        f"{FOREGROUND_CLIP:g} robust widths or {FOREGROUND_MIN_OFFSET_KMS:g} km/s of the median "
+        "velocity and there is no member_prob column: the catalogue looks like members only"
+    )
 
 
 def verdict(ln_bf, ln_bf_err=0.0):
@@ -98,15 +135,68 @@ def _estimators(stars, satellite):
     return out
 
 
-def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, out_dir):
+@dataclasses.dataclass(frozen=True)
+class _Binaries:
+    """The binary part of the likelihood: mixture scales, weights and binary-fraction prior."""
+
+    scales: np.ndarray
+    weights: np.ndarray
+    fraction_range: tuple
+    population: object
+
+
+class _Likelihoods:
+    """Per-population data for the fit (binary mixture and multi-epoch terms computed once)."""
+
+    def __init__(self, stars, settings, foreground_on):
+        self.stars, self.settings, self.foreground_on = stars, settings, foreground_on
+        self._cache = {}
+
+    def plain_data(self):
+        return self.get(None)[1]
+
+    def get(self, spec):
+        from halo.binaries import BinaryPopulation, fit_mixture, load_mixture
+        from halo.likelihood import epoch_terms
+
+        stars, settings = self.stars, self.settings
+        mp = stars.member_prob if self.foreground_on else None
+        if spec is None or not settings.binaries:
+            key = None
+        else:
+            key = (spec.binary_population(), spec.binary_fraction_range)
+        if key in self._cache:
+            return self._cache[key]
+        if key is None:
+            data = make_fit_data(stars.v, stars.v_err, stars.radius_deg, member_prob=mp)
+            self._cache[key] = (None, data, None)
+            return self._cache[key]
+        pop, frac = key
+        if pop == BinaryPopulation():
+            mixture = load_mixture()
+        else:
+            _say("binary population differs from the default: fitting its mixture", settings)
+            mixture = fit_mixture(pop, n=400_000)
+        n_multi = int(np.sum(np.asarray(stars.n_epochs) > 1))
+        if n_multi:
+            _say(
+                f"binary orbits at the epochs of {n_multi} multi-epoch star(s) "
+                f"({settings.n_orbits} orbits each)",
+                settings,
+            )
+        epochs = epoch_terms(stars, mixture, pop, n_orbits=settings.n_orbits)
+        data = make_fit_data(stars.v, stars.v_err, stars.radius_deg, epochs=epochs, member_prob=mp)
+        b = _Binaries(mixture.scales, mixture.weights, frac, pop)
+        self._cache[key] = (b, data, epochs)
+        return self._cache[key]
+
+
+def _model_result(name, spec, satellite, stars, likes, settings, sigma_angles, out_dir):
     import arviz as az
 
-    mixture = None
-    if settings.binaries:
-        from halo.binaries import load_mixture
-
-        mixture = load_mixture()
-    model = make_model(spec, satellite, data, binaries=mixture)
+    binaries, data, epochs = likes.get(spec)
+    foreground = Foreground(satellite.foreground) if likes.foreground_on else None
+    model = make_model(spec, satellite, data, binaries=binaries, foreground=foreground)
     t0 = time.perf_counter()
     _say(
         f"[{name}] sampling: {settings.chains} chains x {settings.warmup} warmup + "
@@ -142,7 +232,12 @@ def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, ou
         warnings.simplefilter("always")
         loo = az.loo(idata, pointwise=True)
     loo_warnings = [str(w.message).split(".")[0] for w in caught]
-    binary_prob = _binary_probability(model, samples) if mixture is not None else None
+    probs = {"member_prob": None, "binary_prob": None}
+    if binaries is not None or foreground is not None:
+        terms_model = make_model(
+            spec, satellite, data, binaries=binaries, foreground=foreground, keep_terms=True
+        )
+        probs = star_probabilities(terms_model, samples, latent)
     _say(f"[{name}] derived quantities", settings)
     der = derive(
         spec,
@@ -166,59 +261,101 @@ def _model_result(name, spec, satellite, stars, data, settings, sigma_angles, ou
         "time_s": time.perf_counter() - t0,
         "sampling_time_s": t_sample,
         "loo_warnings": loo_warnings,
-        "binary_prob": binary_prob,
+        "binary_prob": probs["binary_prob"],
+        "member_prob": probs["member_prob"],
+        "data": data,
+        "binaries": binaries,
+        "epochs": epochs,
     }
 
 
-def _binary_probability(model, samples, batch=500):
-    """Posterior mean probability that each star is a binary.
+def star_probabilities(terms_model, samples, latent, batch=256):
+    """Posterior mean per-star probabilities of membership and of being a binary.
 
-    Per draw, p_i = f_b L1_i / ((1 - f_b) L0_i + f_b L1_i), with L0 (L1) the star's likelihood
-    as a single star (as a binary), obtained by re-evaluating the likelihood at f_binary = 0 and 1.
+    Per draw, with the per-star terms of :mod:`halo.likelihood`:
+    member: p L_member / (p L_member + (1 - p) L_fg); binary (given membership):
+    f_b L_binary / ((1 - f_b) L_single + f_b L_binary). Averaged over the draws. Returns a dict
+    with ``member_prob`` and ``binary_prob`` (None when the part is not modelled).
     """
+    import jax
     import jax.numpy as jnp
-    from numpyro.infer.util import log_likelihood
+    from numpyro import handlers
 
-    f_b = np.asarray(samples["f_binary"])
-    out = []
-    for k in range(0, len(f_b), batch):
-        sub = {key: jnp.asarray(v[k : k + batch]) for key, v in samples.items()}
-        ll = [
-            np.asarray(
-                log_likelihood(model, {**sub, "f_binary": jnp.full(len(sub["f_binary"]), x)})["v"]
-            )
-            for x in (0.0, 1.0)
-        ]
-        fb = f_b[k : k + batch, None]
-        with np.errstate(divide="ignore"):
-            a = np.log1p(-fb) + ll[0]
-            b = np.log(fb) + ll[1]
-        out.append(np.exp(b - np.logaddexp(a, b)))
-    return np.concatenate(out).mean(axis=0)
+    names = (
+        "ll_single",
+        "ll_binary",
+        "ll_member",
+        "ll_foreground",
+        "log_prior_member",
+        "log_prior_non",
+    )
+
+    def one(params):
+        tr = handlers.trace(handlers.substitute(handlers.seed(terms_model, 0), data=params))
+        t = tr.get_trace()
+        out = {k: t[k]["value"] for k in names if k in t}
+        if "ll_binary" in out:
+            fb = params["f_binary"]
+            a = jnp.log1p(-fb) + out["ll_single"]
+            b = jnp.log(fb) + out["ll_binary"]
+            out["p_binary"] = jnp.exp(b - jnp.logaddexp(a, b))
+        if "ll_foreground" in out:
+            a = out["log_prior_member"] + out["ll_member"]
+            b = out["log_prior_non"] + out["ll_foreground"]
+            out["p_member"] = jnp.exp(a - jnp.logaddexp(a, b))
+        return {k: out[k] for k in ("p_binary", "p_member") if k in out}
+
+    fn = jax.jit(jax.vmap(one))
+    n = len(next(iter(samples.values())))
+    sums = {}
+    for k in range(0, n, batch):
+        sub = {key: jnp.asarray(samples[key][k : k + batch]) for key in latent}
+        res = fn(sub)
+        for key, val in res.items():
+            sums[key] = sums.get(key, 0.0) + np.asarray(val).sum(axis=0)
+    return {
+        "member_prob": sums["p_member"] / n if "p_member" in sums else None,
+        "binary_prob": sums["p_binary"] / n if "p_binary" in sums else None,
+    }
 
 
 def _write_members(path, stars, results, names, satellite):
     """members.ecsv: per star id, member_prob, binary_prob, radius used and epoch count."""
     from astropy.table import Table
 
-    from halo.fileio import atomic_path
-
     dark = [n for n in names if n != STARS_ONLY]
     ref = dark[0] if dark else STARS_ONLY
+    res = results[ref]
     t = Table()
     t["id"] = np.asarray(stars.id).astype(str)
-    mp = stars.member_prob
-    t["member_prob"] = np.ones(stars.n_stars) if mp is None else np.asarray(mp, dtype=float)
-    bp = results[ref]["binary_prob"]
+    mp = res["member_prob"]
+    if mp is None:
+        mp = np.ones(stars.n_stars) if stars.member_prob is None else stars.member_prob
+    t["member_prob"] = np.asarray(mp, dtype=float)
+    if stars.member_prob is not None:
+        t["member_prob_prior"] = np.asarray(stars.member_prob, dtype=float)
+    bp = res["binary_prob"]
     t["binary_prob"] = np.full(stars.n_stars, np.nan) if bp is None else bp
     t["radius_deg"] = np.asarray(stars.radius_deg)
     t["radius_pc"] = np.tan(np.radians(np.asarray(stars.radius_deg))) * satellite.distance_kpc * 1e3
     t["n_epochs"] = np.asarray(stars.n_epochs)
+    t["v_mean_kms"] = np.asarray(stars.v)
+    t["v_mean_err_kms"] = np.asarray(stars.v_err)
+    if res.get("epochs") is not None:
+        t["binary_mc_ess"] = np.asarray(res["epochs"].ess)
+    for n in names:
+        if n == ref:
+            continue
+        if results[n]["member_prob"] is not None:
+            t[f"member_prob_{n}"] = results[n]["member_prob"]
     t.meta["model"] = ref
     t.meta["note"] = (
-        "member_prob: 1 (no foreground model yet) or the catalogue's member_prob column; "
-        "binary_prob: posterior mean, NaN when binaries are not modelled; radius_pc: "
-        "circularised, at the satellite file's distance"
+        f"member_prob: posterior membership probability under model '{ref}' (1 when the "
+        "foreground is not modelled, or the catalogue's member_prob when given and not modelled); "
+        "member_prob_prior: the catalogue's column; binary_prob: posterior probability of being a "
+        "binary if a member (NaN when binaries are not modelled); radius_pc: circularised, at the "
+        "satellite file's distance; v_mean_kms: inverse-variance weighted mean over the epochs; "
+        "binary_mc_ess: effective number of Monte Carlo orbits behind the multi-epoch binary term"
     )
     with atomic_path(path) as tmp:
         t.write(str(tmp), format="ascii.ecsv", overwrite=True)
@@ -293,6 +430,12 @@ def _summarise_model(res, settings):
             "warnings": res["loo_warnings"],
         },
         "time_s": res["time_s"],
+        "binary_fraction": (
+            quantiles(res["samples"]["f_binary"]) if "f_binary" in res["samples"] else None
+        ),
+        "effective_members": float(
+            res["data"].n_stars if res["member_prob"] is None else np.sum(res["member_prob"])
+        ),
     }
 
 
@@ -330,6 +473,59 @@ def _sigma_angles(stars):
     return np.geomspace(th.min(), th.max(), 24)
 
 
+def _foreground_setting(stars, settings):
+    if settings.foreground == "auto":
+        return foreground_decision(stars)
+    if settings.foreground:
+        return True, "switched on by the user"
+    return False, "switched off by the user"
+
+
+def _resolution(res, stars):
+    """Whether the data resolve the dispersion (stars-only fit as the plug-in reference)."""
+    from halo.likelihood import dispersion_resolution
+
+    s = res["samples"]
+    f_b = float(np.median(s["f_binary"])) if "f_binary" in s else None
+    out = dispersion_resolution(
+        np.asarray(res["data"].v),
+        np.asarray(res["data"].v_err),
+        float(np.median(s["v_sys"])),
+        weights=res["member_prob"],
+        binaries=res["binaries"],
+        f_binary=f_b,
+        epochs=res["epochs"],
+    )
+    if out["resolved"]:
+        out["message"] = (
+            f"velocity dispersion resolved: {out['sigma_median_kms']:.2f} "
+            f"(+{out['sigma_p84_kms'] - out['sigma_median_kms']:.2f}/"
+            f"-{out['sigma_median_kms'] - out['sigma_p16_kms']:.2f}) km/s"
+        )
+    else:
+        out["message"] = (
+            "the velocity dispersion is NOT RESOLVED by these data (sigma = 0 is allowed: "
+            f"2 delta ln L = {out['two_delta_ln_l']:.2f} < 4); quote upper limits: sigma_los < "
+            f"{out['sigma_upper95_kms']:.2f} km/s (95%) and the models' 95% upper limits on "
+            "the mass (upper_limits in summary.json)"
+        )
+    return out
+
+
+def _upper_limits(res):
+    der = res["derived"]
+    out = {"m_half_msun_upper95": float(np.percentile(der["m_half_msun"], 95))}
+    if "log10_j" in der:
+        keys = [f"{a:g}" for a in STANDARD_ANGLES] + ["2rh"]
+        out["log10_j_upper95"] = {
+            k: float(np.percentile(der["log10_j"][:, i], 95)) for i, k in enumerate(keys)
+        }
+        out["log10_d_upper95"] = {
+            k: float(np.percentile(der["log10_d"][:, i], 95)) for i, k in enumerate(keys)
+        }
+    return out
+
+
 def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satellite_path=None):
     """Fit ``models`` (spec names or paths) to ``stars`` (:class:`halo.catalog.StarData`).
 
@@ -345,12 +541,15 @@ def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satelli
     specs = {s.name: s for s in specs.values()}
     if len(set(names)) != len(names):
         raise InputError("--model: two specs share the same name")
-    data = make_fit_data(stars.v, stars.v_err, stars.radius_deg)
+    fg_on, fg_reason = _foreground_setting(stars, settings)
+    _say(f"foreground {'ON' if fg_on else 'off'}: {fg_reason}", settings)
+    _say(f"binaries {'ON' if settings.binaries else 'off'}", settings)
+    likes = _Likelihoods(stars, settings, fg_on)
     sig_angles = _sigma_angles(stars)
     results = {}
     for n in [STARS_ONLY] + [m for m in names if m != STARS_ONLY]:
         results[n] = _model_result(
-            n, specs[n], satellite, stars, data, settings, sig_angles, out_dir
+            n, specs[n], satellite, stars, likes, settings, sig_angles, out_dir
         )
     summary = {
         "version": __version__,
@@ -362,12 +561,33 @@ def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satelli
             "n_stars": int(stars.n_stars),
             "source": str(stars.source),
         },
-        "settings": settings.as_dict(),
+        "settings": {**settings.as_dict(), "foreground": fg_on, "foreground_reason": fg_reason},
         "estimators": _estimators(stars, satellite),
         "models": {},
         "notes": list(stars.notes),
         "warnings": list(stars.warnings),
     }
+    if stars.member_prob is not None and not fg_on:
+        summary["warnings"].append(
+            "the catalogue's member_prob column is ignored: the foreground is switched off"
+        )
+    summary["dispersion"] = _resolution(results[STARS_ONLY], stars)
+    if not summary["dispersion"]["resolved"]:
+        summary["warnings"].append(summary["dispersion"]["message"])
+        _say("WARNING: " + summary["dispersion"]["message"], settings)
+    summary["upper_limits"] = (
+        {n: _upper_limits(results[n]) for n in names}
+        if not summary["dispersion"]["resolved"]
+        else None
+    )
+    few = [] if results[STARS_ONLY]["epochs"] is None else results[STARS_ONLY]["epochs"].ess
+    if len(few) and np.any((np.asarray(stars.n_epochs) > 1) & (np.asarray(few) < 20)):
+        k = int(np.sum((np.asarray(stars.n_epochs) > 1) & (np.asarray(few) < 20)))
+        summary["notes"].append(
+            f"{k} multi-epoch star(s) have fewer than 20 effective Monte Carlo orbits behind their "
+            "binary term (their velocity changes are extreme for the orbit population); see "
+            "binary_mc_ess in members.ecsv"
+        )
     if satellite_path is not None:
         summary["satellite_sha256"] = hashlib.sha256(Path(satellite_path).read_bytes()).hexdigest()
     for n in names:

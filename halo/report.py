@@ -77,6 +77,15 @@ def format_summary(summary, out_dir=None):
             f" estimators: Walker09 {_g(est.get('walker2009_msun'))}, Wolf10 "
             f"{_g(est.get('wolf2010_msun'))}, Errani18 {_g(est.get('errani2018_msun'))} Msun"
         )
+    st = summary.get("settings", {})
+    if "foreground" in st:
+        lines.append(
+            f"binaries {'on' if st.get('binaries') else 'off'}; foreground "
+            f"{'on' if st.get('foreground') else 'off'} ({st.get('foreground_reason', '')})"
+        )
+    disp = summary.get("dispersion")
+    if disp:
+        lines.append(("" if disp["resolved"] else "*** ") + disp["message"])
     for name, m in summary["models"].items():
         flag = "" if m["converged"] else "   *** NOT CONVERGED ***"
         lines.append("")
@@ -88,6 +97,17 @@ def format_summary(summary, out_dir=None):
         if d.get("log10_j"):
             lines.append(f"  log10 J(0.5)   {_fmt_q(d['log10_j']['0.5'], '{:.2f}')} GeV^2 cm^-5")
             lines.append(f"  log10 D(0.5)   {_fmt_q(d['log10_d']['0.5'], '{:.2f}')} GeV cm^-2")
+        if m.get("binary_fraction"):
+            lines.append(f"  binary fraction {_fmt_q(m['binary_fraction'], '{:.2f}')}")
+        if m.get("effective_members") is not None:
+            lines.append(f"  members        {m['effective_members']:.1f} (effective)")
+        ul = (summary.get("upper_limits") or {}).get(name)
+        if ul:
+            lines.append(f"  M(<r_1/2) < {ul['m_half_msun_upper95']:.3g} Msun (95% upper limit)")
+            if "log10_j_upper95" in ul:
+                lines.append(
+                    f"  log10 J(0.5) < {ul['log10_j_upper95']['0.5']:.2f} (95% upper limit)"
+                )
         ev = m["evidence"]
         lines.append(f"  ln Z           {ev['log_z']:.2f} +- {ev['log_z_err']:.2f}")
         c = m.get("vs_stars_only")

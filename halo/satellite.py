@@ -38,6 +38,7 @@ _KEYS = {
     "stellar_ml_v": (list, False, None),
     "galactocentric_distance_kpc": (float, False, _POSITIVE),
     "age_gyr": (float, False, ("between 0 and 14", lambda v: 0 < v <= 14)),
+    "foreground": (list, False, None),
 }
 
 
@@ -63,6 +64,7 @@ class Satellite:
     stellar_ml_v: tuple | None = None
     galactocentric_distance_kpc: float | None = None
     age_gyr: float | None = None
+    foreground: tuple | None = None
     source: str = dataclasses.field(default="<memory>", compare=False)
 
     @property
@@ -101,7 +103,41 @@ class Satellite:
         d.pop("source")
         if d["stellar_ml_v"] is not None:
             d["stellar_ml_v"] = list(d["stellar_ml_v"])
+        if d["foreground"] is not None:
+            d["foreground"] = [
+                {"mean_kms": m, "sigma_kms": s, "weight": w} for m, s, w in d["foreground"]
+            ]
         return {k: v for k, v in d.items() if v is not None}
+
+
+def _foreground(items, where):
+    """[[foreground]] tables -> ((mean_kms, sigma_kms, weight), ...)."""
+    if not isinstance(items, list) or not items:
+        raise InputError(
+            f"{where} key 'foreground' must be a list of tables with mean_kms, sigma_kms, weight"
+        )
+    out = []
+    for k, item in enumerate(items, 1):
+        if not isinstance(item, dict):
+            raise InputError(f"{where} foreground component {k} must be a table")
+        unknown = set(item) - {"mean_kms", "sigma_kms", "weight"}
+        if unknown:
+            raise InputError(
+                f"{where} foreground component {k}: unknown key '{sorted(unknown)[0]}' "
+                "(known: mean_kms, sigma_kms, weight)"
+            )
+        vals = []
+        for key, default in (("mean_kms", None), ("sigma_kms", None), ("weight", 1.0)):
+            v = item.get(key, default)
+            if v is None:
+                raise InputError(f"{where} foreground component {k}: missing key '{key}'")
+            if isinstance(v, bool) or not isinstance(v, int | float) or not math.isfinite(v):
+                raise InputError(f"{where} foreground component {k}: '{key}' must be a number")
+            if key != "mean_kms" and v <= 0:
+                raise InputError(f"{where} foreground component {k}: '{key}' must be positive")
+            vals.append(float(v))
+        out.append(tuple(vals))
+    return tuple(out)
 
 
 def parse_satellite(data, source="<memory>"):
@@ -149,6 +185,8 @@ def parse_satellite(data, source="<memory>"):
         if not ok:
             raise InputError(f"{where} key 'stellar_ml_v' must be [low, high] with 0 < low <= high")
         values["stellar_ml_v"] = (float(ml[0]), float(ml[1]))
+    if "foreground" in values:
+        values["foreground"] = _foreground(values["foreground"], where)
     has_mass = "stellar_mass_msun" in values
     has_mag = "absolute_magnitude_v" in values
     if has_mass == has_mag and not (has_mass and has_mag):

@@ -82,6 +82,23 @@ class ModelSpec:
     anisotropy: str
     parameters: dict
     source: str
+    binaries: dict = dataclasses.field(default_factory=dict)
+
+    def binary_population(self):
+        """The :class:`halo.binaries.BinaryPopulation` of this spec's ``[binaries]`` table."""
+        from halo.binaries import BinaryPopulation
+
+        b = dict(self.binaries)
+        b.pop("fraction", None)
+        periods = b.pop("periods", "raghavan10")
+        if periods == "duquennoy91":
+            return BinaryPopulation.duquennoy_mayor_1991(**b)
+        return BinaryPopulation(**b)
+
+    @property
+    def binary_fraction_range(self):
+        """(low, high) of the uniform prior on the binary fraction (default (0, 1))."""
+        return tuple(self.binaries.get("fraction", (0.0, 1.0)))
 
     @property
     def has_dark(self):
@@ -108,7 +125,7 @@ def _spec_error(source, msg):
 
 
 def parse_spec(data, name, source):
-    known = {"description", "dark_profile", "anisotropy", "parameters"}
+    known = {"description", "dark_profile", "anisotropy", "parameters", "binaries"}
     for key in data:
         if key not in known:
             raise _spec_error(source, f"unknown key '{key}' (known: {', '.join(sorted(known))})")
@@ -177,7 +194,61 @@ def parse_spec(data, name, source):
         ]
     if missing:
         raise _spec_error(source, f"missing prior for parameter(s) {', '.join(missing)}")
-    return dataclasses.replace(spec, parameters=dict(params))
+    binaries = _binaries(data.get("binaries", {}), source)
+    return dataclasses.replace(spec, parameters=dict(params), binaries=binaries)
+
+
+#: [binaries] keys -> check
+BINARY_KEYS = {
+    "periods": "'raghavan10' or 'duquennoy91' (log-normal period distribution)",
+    "m1_msun": "primary (observed star) mass [Msun]",
+    "r1_rsun": "primary radius [Rsun]",
+    "q_min": "lowest mass ratio",
+    "q_max": "highest mass ratio",
+    "e_max": "highest eccentricity",
+    "p_circular_days": "orbits with shorter periods are circular [day]",
+    "log_period_mean": "mean of log10(P / day)",
+    "log_period_sigma": "width of log10(P / day)",
+    "fraction": "[low, high] of the uniform prior on the binary fraction",
+}
+
+
+def _binaries(table, source):
+    """Validate the optional [binaries] table of a spec (orbit population and fraction prior)."""
+    if not isinstance(table, dict):
+        raise _spec_error(source, "'binaries' must be a table")
+    out = {}
+    for key, v in table.items():
+        if key not in BINARY_KEYS:
+            raise _spec_error(
+                source, f"[binaries] unknown key '{key}' (known: {', '.join(BINARY_KEYS)})"
+            )
+        if key == "periods":
+            if v not in ("raghavan10", "duquennoy91"):
+                raise _spec_error(source, f"[binaries] periods: {BINARY_KEYS[key]}, got {v!r}")
+        elif key == "fraction":
+            ok = (
+                isinstance(v, list)
+                and len(v) == 2
+                and all(isinstance(x, int | float) and not isinstance(x, bool) for x in v)
+                and 0 <= v[0] < v[1] <= 1
+            )
+            if not ok:
+                raise _spec_error(source, "[binaries] fraction must be [low, high] in [0, 1]")
+            v = (float(v[0]), float(v[1]))
+        else:
+            if isinstance(v, bool) or not isinstance(v, int | float):
+                raise _spec_error(source, f"[binaries] {key} must be a number")
+            v = float(v)
+            if key != "log_period_mean" and v <= 0:
+                raise _spec_error(source, f"[binaries] {key} must be positive")
+        out[key] = v
+    q_lo, q_hi = out.get("q_min", 0.1), out.get("q_max", 1.0)
+    if not q_lo < q_hi:
+        raise _spec_error(source, "[binaries] needs q_min < q_max")
+    if not out.get("e_max", 0.9) < 1:
+        raise _spec_error(source, "[binaries] e_max must be below 1")
+    return out
 
 
 def available_specs():

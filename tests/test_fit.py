@@ -49,6 +49,10 @@ CLUSTER = {
     "stellar_mass_err_msun": 4.0e3,
 }
 SETTINGS = FitSettings(chains=2, warmup=400, draws=400, seed=3, progress=False)
+# The dwarf mock has no binaries and the estimators assume none, so the dwarf is fitted without
+# the binary term (with it, the free binary fraction legitimately absorbs part of the
+# dispersion); the cluster uses the defaults (binaries on, foreground decided automatically).
+NO_BINARIES = FitSettings(chains=2, warmup=400, draws=400, seed=3, progress=False, binaries=False)
 
 
 @pytest.fixture(scope="module")
@@ -58,7 +62,7 @@ def dwarf_fit(tmp_path_factory):
     mock = make_mock(sat, dark, n_stars=150, v_sys=-40.0, error_range_kms=(1.0, 2.0), seed=11)
     stars = stars_from_table(mock.table, sat, source="dwarf-mock")
     out = tmp_path_factory.mktemp("dwarf")
-    summary = fit(stars, sat, out, ["cored"], SETTINGS)
+    summary = fit(stars, sat, out, ["cored"], NO_BINARIES)
     truth_j = float(log10_j(dark, sat.distance_kpc, jnp.array(0.5)))
     return summary, mock.truth, truth_j, out
 
