@@ -253,6 +253,18 @@ def mock_cmd(
     errors: str = typer.Option("1,3", "--errors", help="velocity error range LO,HI [km/s]"),
     method: str = typer.Option("df", "--method", help="df (equilibrium) or gaussian (approximate)"),
     seed: int = typer.Option(0, "--seed", help="random seed"),
+    epochs: str = typer.Option(
+        None, "--epochs", help="observing epochs as MJDs, e.g. 60000,60365 (adds an mjd column)"
+    ),
+    repeat_fraction: float = typer.Option(
+        1.0, "--repeat-fraction", help="fraction of stars observed at every epoch"
+    ),
+    binary_fraction: float = typer.Option(
+        0.0, "--binary-fraction", help="fraction of members that are binaries (orbits drawn)"
+    ),
+    n_foreground: int = typer.Option(
+        0, "--foreground", help="number of non-member field stars to add"
+    ),
 ):
     """A mock catalogue with a known truth (written beside it as JSON)."""
     from halo.demo import write_mock
@@ -263,6 +275,15 @@ def mock_cmd(
         _fail("--errors: expected LO,HI with LO <= HI")
     if method not in ("df", "gaussian"):
         _fail(f"--method: expected df or gaussian, got {method!r}")
+    mjds = None if epochs is None else _parse_list(epochs, "--epochs")
+    for value, name in (
+        (repeat_fraction, "--repeat-fraction"),
+        (binary_fraction, "--binary-fraction"),
+    ):
+        if not 0.0 <= value <= 1.0:
+            _fail(f"{name}: expected a number between 0 and 1, got {value!r}")
+    if n_foreground < 0:
+        _fail(f"--foreground: expected a non-negative number of stars, got {n_foreground!r}")
     path, truth_path = write_mock(
         _satellite_path(satellite),
         out,
@@ -273,8 +294,194 @@ def mock_cmd(
         error_range=tuple(err),
         method=method,
         seed=seed,
+        epochs_mjd=mjds,
+        repeat_fraction=repeat_fraction,
+        binary_fraction=binary_fraction,
+        n_foreground=n_foreground,
     )
-    typer.echo(f"wrote {path} ({n_stars} stars) and its truth {truth_path}")
+    extra = f" + {n_foreground} foreground" if n_foreground else ""
+    typer.echo(f"wrote {path} ({n_stars} stars{extra}) and its truth {truth_path}")
+
+
+@app.command("init")
+def init_cmd(
+    workspace: str = typer.Argument(..., help="new workspace folder"),
+    satellite: str = typer.Option(..., "--satellite", help="satellite description file (TOML)"),
+    model: list[str] = typer.Option(
+        None, "--model", help="model spec name or path (repeatable; default nfw, cored)"
+    ),
+):
+    """Create a workspace for one satellite: catalogue versions, runs and their history."""
+    from halo.workspace import init_workspace
+
+    ws = init_workspace(workspace, _satellite_path(satellite), list(model) if model else None)
+    typer.echo(f"workspace {ws.root} created; add stars with `halo add {ws.root} CATALOGUE`")
+
+
+@app.command("add")
+def add_cmd(
+    workspace: str = typer.Argument(..., help="workspace folder"),
+    catalogue: str = typer.Argument(..., help="velocity catalogue with new stars or epochs"),
+    replace: bool = typer.Option(
+        False, "--replace", help="let new values supersede conflicting measurements"
+    ),
+    column: list[str] = typer.Option(
+        None, "--column", help="column override ROLE=NAME, e.g. vlos=VHEL (repeatable)"
+    ),
+):
+    """Merge a catalogue's stars and epochs into a new catalogue version."""
+    from halo.catalog import parse_column_overrides
+    from halo.workspace import add_catalogue
+
+    r = add_catalogue(workspace, catalogue, parse_column_overrides(column), replace=replace)
+    if not r["changed"]:
+        typer.echo(f"nothing new: catalogue version {r['seq']} already holds every row")
+    else:
+        typer.echo(
+            f"catalogue version {r['seq']} ({r['sha256'][:12]}): {r['added']} rows added, "
+            f"{r['replaced']} replaced; {r['n_rows']} rows, {r['n_stars']} stars"
+        )
+
+
+@app.command("refit")
+def refit_cmd(
+    workspace: str = typer.Argument(..., help="workspace folder"),
+    chains: int = typer.Option(None, "--chains", help="number of chains (default: as last run)"),
+    warmup: int = typer.Option(None, "--warmup", help="warmup steps per chain"),
+    draws: int = typer.Option(None, "--draws", help="kept draws per chain"),
+    seed: int = typer.Option(None, "--seed", help="random seed"),
+    binaries: bool | None = typer.Option(
+        None, "--binaries/--no-binaries", help="model binaries (default: as last run, on)"
+    ),
+    foreground: bool | None = typer.Option(
+        None, "--foreground/--no-foreground", help="model foreground (default: as last run)"
+    ),
+    force: bool = typer.Option(False, "--force", help="refit every model even if unchanged"),
+    model: list[str] = typer.Option(
+        None, "--model", help="add or update a model spec (name or path; repeatable)"
+    ),
+    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+):
+    """Fit what changed since the last run (unchanged models are reused, others warm-started).
+
+    Options left out keep the values of the workspace's last run (the defaults of `halo fit`
+    before the first run).
+    """
+    from halo.report import format_summary
+    from halo.workspace import last_settings, refit
+
+    for v, o in ((chains, "--chains"), (warmup, "--warmup"), (draws, "--draws")):
+        if v is not None:
+            _positive_int(v, o)
+    settings = last_settings(
+        workspace,
+        chains=chains,
+        warmup=warmup,
+        draws=draws,
+        seed=seed,
+        binaries=binaries,
+        foreground=foreground,
+        progress=not quiet,
+    )
+
+    def say(msg):
+        if not quiet:
+            typer.echo(msg, err=True)
+
+    folder, message = refit(
+        workspace, settings, force=force, say=say, models=list(model) if model else None
+    )
+    summary = json.loads((folder / "summary.json").read_text())
+    typer.echo(format_summary(summary, folder))
+    typer.echo(message)
+
+
+@app.command("status")
+def status_cmd(
+    workspace: str = typer.Argument(..., help="workspace folder"),
+    json_out: bool = typer.Option(False, "--json", help="one JSON object on stdout"),
+):
+    """What is stale in a workspace and what the next refit would do."""
+    from halo.workspace import status
+
+    st = status(workspace)
+    if json_out:
+        typer.echo(json.dumps(st))
+        return
+    cat = st["catalogue"]
+    typer.echo(
+        f"workspace {st['workspace']}: "
+        + (
+            "no catalogue"
+            if cat is None
+            else f"catalogue version {cat['seq']} ({cat['n_stars']} stars, {cat['n_rows']} rows)"
+        )  # fmt: skip
+        + f", {st['runs']} run(s), models {', '.join(st['models'])}"
+    )
+    if st.get("up_to_date"):
+        typer.echo(f"up to date (run {st['last_run']['seq']})")
+    for line in st["stale"]:
+        typer.echo(f"stale: {line}")
+    for name, action in st.get("next", {}).items():
+        typer.echo(f"next refit: {name}: {action}")
+
+
+@app.command("history")
+def history_cmd(
+    workspace: str = typer.Argument(..., help="workspace folder"),
+    json_out: bool = typer.Option(False, "--json", help="one JSON object on stdout"),
+):
+    """How the mass, J-factor, Bayes factors and members moved from run to run."""
+    from halo.workspace import history, history_figure
+
+    rows = history(workspace)
+    if json_out:
+        typer.echo(json.dumps({"runs": rows}))
+        return
+    if not rows:
+        typer.echo("no runs yet: `halo refit` fits the latest catalogue version")
+        return
+    typer.echo(
+        f"{'run':>4} {'version':>7} {'stars':>6} {'model':>12} {'M(<r_1/2) [Msun]':>24} "
+        f"{'log10 J(0.5)':>14} {'ln B':>12} {'members':>8}"
+    )
+    for r in rows:
+        for name, h in r["models"].items():
+            m = h["m_half_msun"]
+            j = h.get("log10_j_0.5")
+            lb = h.get("ln_bayes_factor")
+            flag = "" if h["converged"] else "  NOT CONVERGED"
+            typer.echo(
+                f"{r['run']:>4} {r['catalogue_version']:>7} {r['n_stars']:>6} {name:>12} "
+                f"{m['median']:>10.3g} [{m['p16']:.2g}, {m['p84']:.2g}]"
+                f"{'' if j is None else format(j['median'], '14.2f'):>14} "
+                f"{'' if lb is None else format(lb, '12.2f'):>12} "
+                f"{h.get('effective_members') or float('nan'):>8.1f}{flag}"
+            )
+    path = history_figure(workspace, rows)
+    typer.echo(f"figure: {path}")
+
+
+@app.command("export")
+def export_cmd(
+    source: str = typer.Argument(..., help="workspace folder (its latest run) or a fit folder"),
+    out: str = typer.Option(..., "--out", help="output folder (must not hold earlier exports)"),
+    angles_deg: str = typer.Option(
+        None, "--angles-deg", help="extra cone half-angles [deg], comma-separated"
+    ),
+):
+    """J- and D-factor tables, posterior draws, FITS templates and the summary of a run."""
+    from pathlib import Path
+
+    from halo.export import export_run
+    from halo.workspace import DB_NAME, latest_run_folder
+
+    src = Path(source)
+    run = latest_run_folder(src) if (src / DB_NAME).is_file() else src
+    written = export_run(run, out, _parse_list(angles_deg, "--angles-deg"))
+    typer.echo(f"exported run {run} to {out}:")
+    for p in written:
+        typer.echo(f"  {p}")
 
 
 def _configure_environment():

@@ -2,7 +2,9 @@
 
 The satellite "Synthetica I" and its stars are invented: the catalogue was drawn by halo's own
 mock generator from an equilibrium distribution function (Eddington inversion) with the truth in
-:data:`DEMO_TRUTH` (also stored in the catalogue's metadata). Regenerate it with
+:data:`DEMO_TRUTH` (also stored in the catalogue's metadata): members with 40% binaries, a
+second epoch for about a third of the stars, and field (foreground) stars mixed in. Regenerate
+it with
 
     python -m halo.demo --regenerate
 
@@ -35,6 +37,12 @@ DEMO_TRUTH = {
     "n_stars": 120,
     "error_range_kms": (1.0, 2.5),
     "seed": 20261202,
+    # a realistic campaign: 40% binaries (orbits drawn one by one), a second epoch a year later
+    # for about a third of the stars, and Galactic field stars in the spectroscopic sample
+    "epochs_mjd": (60310.0, 60675.0),
+    "repeat_fraction": 0.35,
+    "binary_fraction": 0.4,
+    "n_foreground": 25,
 }
 
 #: sampler settings of the demo (the full defaults of ``halo fit``)
@@ -72,6 +80,10 @@ def _demo_mock():
         error_range_kms=t["error_range_kms"],
         seed=t["seed"],
         method="df",
+        epochs_mjd=t["epochs_mjd"],
+        repeat_fraction=t["repeat_fraction"],
+        binary_fraction=t["binary_fraction"],
+        n_foreground=t["n_foreground"],
     )
 
 
@@ -120,16 +132,34 @@ def stars_truth_line():
         f"demo truth: core-NFW halo M200 = {DEMO_TRUTH['m200_msun']:.3g} Msun, c200 = "
         f"{DEMO_TRUTH['c200']:g}, r_c = {DEMO_TRUTH['r_c_kpc'] * 1e3:g} pc, isotropic; "
         f"M(<r_1/2) = {truth['m_half_msun']:.3g} Msun at r_1/2 = "
-        f"{truth['r_half_3d_kpc'] * 1e3:.1f} pc"
+        f"{truth['r_half_3d_kpc'] * 1e3:.1f} pc; {truth['n_stars']} members of which "
+        f"{truth['n_binaries']} binaries, {truth.get('n_foreground', 0)} foreground stars"
     )
 
 
-def write_mock(satellite_path, out, model, values, *, n_stars, v_sys, error_range, method, seed):
+def write_mock(
+    satellite_path,
+    out,
+    model,
+    values,
+    *,
+    n_stars,
+    v_sys,
+    error_range,
+    method,
+    seed,
+    epochs_mjd=None,
+    repeat_fraction=1.0,
+    binary_fraction=0.0,
+    n_foreground=0,
+):
     """``halo mock``: draw a mock from a spec at given parameter values and write it.
 
     Returns (catalogue path, truth path). The truth JSON sits beside the catalogue.
     """
     import math
+
+    import numpy as np
 
     from halo.build import build_anisotropy, build_dark, check_values
     from halo.cosmology import rho_crit
@@ -168,8 +198,13 @@ def write_mock(satellite_path, out, model, values, *, n_stars, v_sys, error_rang
         error_range_kms=error_range,
         seed=seed,
         method=method,
+        epochs_mjd=epochs_mjd,
+        repeat_fraction=repeat_fraction,
+        binary_fraction=binary_fraction,
+        n_foreground=n_foreground,
     )
     truth = dict(mock.truth)
+    truth["binary_ids"] = [int(i) for i in np.flatnonzero(np.asarray(mock.stars["is_binary"]))]
     truth["model"] = spec.name
     truth["parameters"] = {
         k: (None if isinstance(v, float) and math.isinf(v) else v) for k, v in values.items()

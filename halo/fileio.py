@@ -22,11 +22,19 @@ def atomic_path(path):
     os.close(fd)
     try:
         yield Path(tmp)
+        # mkstemp makes the file private (0600): give it the permissions of a normal new file
+        os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
         raise
+
+
+def _umask():
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_text(path, text):

@@ -15,6 +15,7 @@ is compared with it.
 import dataclasses
 import datetime
 import hashlib
+import json
 import sys
 import time
 import warnings
@@ -119,11 +120,32 @@ def _latent_sites(model):
     return [k for k, s in tr.items() if s["type"] == "sample" and not s.get("is_observed", False)]
 
 
-def _estimators(stars, satellite):
-    fit = dispersion_ml(stars.v, stars.v_err)
+def _estimators(stars, satellite, member_prob=None, binary_prob=None):
+    """The classic mass estimators from the global dispersion of the likely single members.
+
+    With a foreground model, stars with posterior member_prob < 0.5 are left out; with binaries,
+    stars with binary_prob > 0.5 (velocity variables) too. The estimators assume neither.
+    """
+    use = np.ones(stars.n_stars, dtype=bool)
+    why = []
+    if member_prob is not None:
+        use &= np.asarray(member_prob) >= 0.5
+        why.append("member_prob >= 0.5")
+    if binary_prob is not None:
+        use &= np.asarray(binary_prob) <= 0.5
+        why.append("binary_prob <= 0.5")
+    if use.sum() < 3:
+        use[:] = True
+        why = ["all stars (fewer than 3 pass the selection)"]
+    fit = dispersion_ml(np.asarray(stars.v)[use], np.asarray(stars.v_err)[use])
     r_e = satellite.r_half_circ_kpc
     r_e_err = satellite.r_half_err_pc * 1e-3 * np.sqrt(1 - satellite.ellipticity)
-    out = {"sigma_los_kms": fit.sigma, "sigma_los_err_kms": fit.sigma_err}
+    out = {
+        "sigma_los_kms": fit.sigma,
+        "sigma_los_err_kms": fit.sigma_err,
+        "n_stars_used": int(use.sum()),
+        "selection": " and ".join(why) if why else "all stars",
+    }
     for name in ("walker2009", "wolf2010", "errani2018"):
         if fit.sigma > 0:
             q = propagate(name, fit.sigma, r_e, fit.sigma_err, r_e_err, method="montecarlo")
@@ -191,42 +213,114 @@ class _Likelihoods:
         return self._cache[key]
 
 
-def _model_result(name, spec, satellite, stars, likes, settings, sigma_angles, out_dir):
+def load_posterior(run_dir, name):
+    """(idata, samples) of model ``name`` in an earlier output folder (samples flattened over
+    chains, chain-major, as numpyro's ``get_samples``)."""
+    import arviz as az
+
+    idata = az.from_netcdf(str(Path(run_dir) / name / "posterior.nc"))
+    post = idata["posterior"]
+    samples = {}
+    for k in post.data_vars:
+        a = np.asarray(post[k].values)
+        samples[k] = a.reshape((-1,) + a.shape[2:])
+    return idata, samples
+
+
+#: warm start: warmup iterations used when the chains start from an earlier posterior
+WARM_WARMUP_FRACTION = 0.25
+WARM_WARMUP_MIN = 200
+
+
+def _warm_init(model, latent, prev_samples, chains, seed):
+    """Unconstrained starting points: ``chains`` random draws of an earlier posterior, or None
+    when the earlier run lacks one of the model's sites."""
+    from halo.evidence import unconstrained_draws
+
+    if any(k not in prev_samples for k in latent):
+        return None
+    n = len(prev_samples[latent[0]])
+    pick = np.random.default_rng(seed).choice(n, size=chains, replace=n < chains)
+    sub = {k: np.asarray(prev_samples[k])[pick] for k in latent}
+    flat, layout = unconstrained_draws(model, sub, latent)
+    out, i = {}, 0
+    for k, size in layout:
+        shape = np.shape(sub[k])[1:]
+        out[k] = flat[:, i : i + size].reshape((chains,) + shape)
+        i += size
+    return out
+
+
+def _model_result(
+    name, spec, satellite, stars, likes, settings, sigma_angles, out_dir, reuse=None, warm=None
+):
+    """Fit one model (or, with ``reuse`` = an earlier output folder whose inputs were identical,
+    take its posterior and evidence); ``warm`` = an earlier folder to start the chains from."""
+    import shutil
+    from types import SimpleNamespace
+
     import arviz as az
 
     binaries, data, epochs = likes.get(spec)
     foreground = Foreground(satellite.foreground) if likes.foreground_on else None
     model = make_model(spec, satellite, data, binaries=binaries, foreground=foreground)
-    t0 = time.perf_counter()
-    _say(
-        f"[{name}] sampling: {settings.chains} chains x {settings.warmup} warmup + "
-        f"{settings.draws} draws",
-        settings,
-    )
-    mcmc = run_nuts(
-        model,
-        chains=settings.chains,
-        warmup=settings.warmup,
-        draws=settings.draws,
-        seed=settings.seed,
-        progress=settings.progress,
-    )
-    t_sample = time.perf_counter() - t0
-    samples = {k: np.asarray(v) for k, v in mcmc.get_samples().items()}
-    idata = az.from_numpyro(mcmc, log_likelihood=True)
     latent = _latent_sites(model)
+    t0 = time.perf_counter()
+    start = None
+    if reuse is not None:
+        _say(f"[{name}] unchanged inputs: reusing the posterior of {reuse}", settings)
+        idata, samples = load_posterior(reuse, name)
+        prev = json.loads((Path(reuse) / "summary.json").read_text())["models"][name]
+        ev = SimpleNamespace(**{k: prev["evidence"][k] for k in ("log_z", "log_z_err")})
+        t_sample = 0.0
+        post_path = Path(out_dir) / name / "posterior.nc"
+        post_path.parent.mkdir(parents=True, exist_ok=True)
+        with atomic_path(post_path) as tmp:
+            shutil.copyfile(Path(reuse) / name / "posterior.nc", tmp)
+    else:
+        warmup = settings.warmup
+        if warm is not None:
+            try:
+                _, prev_samples = load_posterior(warm, name)
+                init = _warm_init(model, latent, prev_samples, settings.chains, settings.seed)
+            except (OSError, KeyError, ValueError):
+                init = None
+            if init is not None:
+                warmup = max(WARM_WARMUP_MIN, int(WARM_WARMUP_FRACTION * settings.warmup))
+                start = {"from": str(warm), "warmup": warmup}
+                _say(f"[{name}] warm start from {warm} ({warmup} warmup iterations)", settings)
+        else:
+            init = None
+        _say(
+            f"[{name}] sampling: {settings.chains} chains x {warmup} warmup + "
+            f"{settings.draws} draws",
+            settings,
+        )
+        mcmc = run_nuts(
+            model,
+            chains=settings.chains,
+            warmup=warmup,
+            draws=settings.draws,
+            seed=settings.seed,
+            progress=settings.progress,
+            init_params=init,
+        )
+        t_sample = time.perf_counter() - t0
+        samples = {k: np.asarray(v) for k, v in mcmc.get_samples().items()}
+        idata = az.from_numpyro(mcmc, log_likelihood=True)
     diag = diagnostics(idata, latent)
     if not diag.converged:
         _say(f"[{name}] WARNING: NOT CONVERGED: {'; '.join(diag.problems())}", settings)
-    _say(f"[{name}] evidence (bridge sampling)", settings)
-    ev = log_evidence(
-        model,
-        samples,
-        latent,
-        chains=settings.chains,
-        seed=settings.seed,
-        progress=settings.progress,
-    )
+    if reuse is None:
+        _say(f"[{name}] evidence (bridge sampling)", settings)
+        ev = log_evidence(
+            model,
+            samples,
+            latent,
+            chains=settings.chains,
+            seed=settings.seed,
+            progress=settings.progress,
+        )
     with warnings.catch_warnings(record=True) as caught:
         # arviz warns about large Pareto k; the summary reports them per model instead
         warnings.simplefilter("always")
@@ -246,11 +340,14 @@ def _model_result(name, spec, satellite, stars, likes, settings, sigma_angles, o
         sigma_angles_deg=sigma_angles,
         rng=np.random.default_rng(settings.seed),
     )
-    post_path = Path(out_dir) / name / "posterior.nc"
-    post_path.parent.mkdir(parents=True, exist_ok=True)
-    with atomic_path(post_path) as tmp:
-        idata.to_netcdf(str(tmp))
+    if reuse is None:
+        post_path = Path(out_dir) / name / "posterior.nc"
+        post_path.parent.mkdir(parents=True, exist_ok=True)
+        with atomic_path(post_path) as tmp:
+            idata.to_netcdf(str(tmp))
     return {
+        "reused_from": None if reuse is None else str(reuse),
+        "warm_start": start,
         "spec": spec,
         "samples": samples,
         "latent": latent,
@@ -481,20 +578,19 @@ def _foreground_setting(stars, settings):
     return False, "switched off by the user"
 
 
-def _resolution(res, stars):
-    """Whether the data resolve the dispersion (stars-only fit as the plug-in reference)."""
+def _resolution(res):
+    """Whether the data resolve the dispersion (membership and v_sys from the fit ``res``)."""
     from halo.likelihood import dispersion_resolution
 
-    s = res["samples"]
-    f_b = float(np.median(s["f_binary"])) if "f_binary" in s else None
+    b = res["binaries"]
     out = dispersion_resolution(
         np.asarray(res["data"].v),
         np.asarray(res["data"].v_err),
-        float(np.median(s["v_sys"])),
+        float(np.median(res["samples"]["v_sys"])),
         weights=res["member_prob"],
-        binaries=res["binaries"],
-        f_binary=f_b,
+        binaries=b,
         epochs=res["epochs"],
+        fraction_range=(0.0, 1.0) if b is None else b.fraction_range,
     )
     if out["resolved"]:
         out["message"] = (
@@ -526,19 +622,30 @@ def _upper_limits(res):
     return out
 
 
-def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satellite_path=None):
+def fit(
+    stars,
+    satellite,
+    out_dir,
+    models=DEFAULT_MODELS,
+    settings=None,
+    satellite_path=None,
+    reuse=None,
+    warm=None,
+):
     """Fit ``models`` (spec names or paths) to ``stars`` (:class:`halo.catalog.StarData`).
 
-    Writes the output folder and returns the summary dict.
+    ``reuse``: {model name: earlier output folder} whose results are taken as they are (the
+    caller guarantees identical inputs); ``warm``: {model name: earlier output folder} whose
+    posterior starts the chains. Writes the output folder and returns the summary dict.
     """
+    reuse, warm = reuse or {}, warm or {}
     settings = FitSettings() if settings is None else settings
     out_dir = Path(out_dir)
-    names = list(dict.fromkeys(models))
-    if STARS_ONLY not in names:
-        names.append(STARS_ONLY)
-    specs = {n: load_spec(n) for n in names}
-    names = [s.name for s in specs.values()]
-    specs = {s.name: s for s in specs.values()}
+    loaded = [load_spec(n) for n in dict.fromkeys(models)]
+    if STARS_ONLY not in [s.name for s in loaded]:
+        loaded.append(load_spec(STARS_ONLY))
+    names = [s.name for s in loaded]
+    specs = {s.name: s for s in loaded}
     if len(set(names)) != len(names):
         raise InputError("--model: two specs share the same name")
     fg_on, fg_reason = _foreground_setting(stars, settings)
@@ -549,8 +656,18 @@ def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satelli
     results = {}
     for n in [STARS_ONLY] + [m for m in names if m != STARS_ONLY]:
         results[n] = _model_result(
-            n, specs[n], satellite, stars, likes, settings, sig_angles, out_dir
+            n,
+            specs[n],
+            satellite,
+            stars,
+            likes,
+            settings,
+            sig_angles,
+            out_dir,
+            reuse=reuse.get(n),
+            warm=warm.get(n),
         )
+    ref = next((n for n in names if n != STARS_ONLY), STARS_ONLY)
     summary = {
         "version": __version__,
         "created": datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
@@ -562,7 +679,9 @@ def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satelli
             "source": str(stars.source),
         },
         "settings": {**settings.as_dict(), "foreground": fg_on, "foreground_reason": fg_reason},
-        "estimators": _estimators(stars, satellite),
+        "estimators": _estimators(
+            stars, satellite, results[ref]["member_prob"], results[ref]["binary_prob"]
+        ),
         "models": {},
         "notes": list(stars.notes),
         "warnings": list(stars.warnings),
@@ -571,7 +690,7 @@ def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satelli
         summary["warnings"].append(
             "the catalogue's member_prob column is ignored: the foreground is switched off"
         )
-    summary["dispersion"] = _resolution(results[STARS_ONLY], stars)
+    summary["dispersion"] = _resolution(results[ref])
     if not summary["dispersion"]["resolved"]:
         summary["warnings"].append(summary["dispersion"]["message"])
         _say("WARNING: " + summary["dispersion"]["message"], settings)
@@ -592,6 +711,9 @@ def fit(stars, satellite, out_dir, models=DEFAULT_MODELS, settings=None, satelli
         summary["satellite_sha256"] = hashlib.sha256(Path(satellite_path).read_bytes()).hexdigest()
     for n in names:
         entry = _summarise_model(results[n], settings)
+        entry["spec_source"] = str(specs[n].source)
+        entry["reused_from"] = results[n]["reused_from"]
+        entry["warm_start"] = results[n]["warm_start"]
         if n != STARS_ONLY:
             entry["vs_stars_only"] = _compare(results[n], results[STARS_ONLY])
         summary["models"][n] = entry

@@ -318,19 +318,30 @@ class PerStarLikelihood(dist.Distribution):
 
 
 def dispersion_resolution(
-    v, v_err, v_sys, weights=None, binaries=None, f_binary=None, epochs=None, n_grid=801
+    v,
+    v_err,
+    v_sys,
+    weights=None,
+    binaries=None,
+    epochs=None,
+    fraction_range=(0.0, 1.0),
+    n_grid=801,
+    n_fraction=101,
 ):
-    """Is a (constant) line-of-sight dispersion resolved by the data? Profile in sigma.
+    """Is a (constant) line-of-sight dispersion resolved by the data?
 
-    The member likelihood of the module notes with sigma_los constant, evaluated on a grid of
-    sigma at a plugged-in systemic velocity and binary fraction (posterior medians of a fit), each
-    star's log-likelihood weighted by its membership probability ``weights``.
+    The member likelihood of the module notes with sigma_los constant, on a grid of sigma, at a
+    plugged-in systemic velocity (a fit's posterior median), each star's log-likelihood weighted
+    by its membership probability ``weights``; with ``binaries`` the binary fraction is
+    marginalised over its uniform prior on ``fraction_range`` (``n_fraction`` grid points).
 
     Returns a dict: ``resolved`` (2 [ln L(sigma_hat) - ln L(0)] >= 4, i.e. sigma = 0 excluded at
     about 2 sigma by the likelihood-ratio test, Wilks 1938 [common practice]), ``two_delta_ln_l``,
     and from the posterior with a uniform prior in sigma on the grid: ``sigma_median_kms``,
     ``sigma_p16_kms``, ``sigma_p84_kms``, ``sigma_upper95_kms`` (the one-sided 95% upper limit).
     """
+    from scipy.special import logsumexp as np_logsumexp
+
     v = np.asarray(v, dtype=float)
     e2 = np.asarray(v_err, dtype=float) ** 2
     n = len(v)
@@ -347,20 +358,24 @@ def dispersion_resolution(
             loc = np.zeros_like(scales)
         else:
             log_w, scales, loc = (np.asarray(a) for a in (epochs.log_w, epochs.scale, epochs.loc))
+        lo, hi = fraction_range
+        fr = lo + (hi - lo) * (np.arange(n_fraction) + 0.5) / n_fraction
     ll = np.empty(n_grid)
     for k, s in enumerate(grid):
         var = s**2 + e2
         single = log_c0 - 0.5 * (v - v_sys) ** 2 / var - 0.5 * np.log(2 * np.pi * var)
-        if binaries is None or f_binary is None:
-            per = single
-        else:
-            tot = var[:, None] + scales**2
-            d2 = (v[:, None] - loc - v_sys) ** 2
-            lb = log_w - 0.5 * d2 / tot - 0.5 * np.log(2 * np.pi * tot)
-            m = lb.max(axis=1)
-            binary = log_c1 + m + np.log(np.exp(lb - m[:, None]).sum(axis=1))
-            per = np.logaddexp(np.log1p(-f_binary) + single, np.log(f_binary) + binary)
-        ll[k] = np.sum(q * per)
+        if binaries is None:
+            ll[k] = np.sum(q * single)
+            continue
+        tot = var[:, None] + scales**2
+        d2 = (v[:, None] - loc - v_sys) ** 2
+        binary = log_c1 + np_logsumexp(
+            log_w - 0.5 * d2 / tot - 0.5 * np.log(2 * np.pi * tot), axis=1
+        )
+        per = np.logaddexp(
+            np.log1p(-fr)[:, None] + single[None, :], np.log(fr)[:, None] + binary[None, :]
+        )
+        ll[k] = np_logsumexp(per @ q) - np.log(n_fraction)
     two_dl = float(2.0 * (ll.max() - ll[0]))
     post = np.exp(ll - ll.max())
     cdf = np.concatenate([[0.0], np.cumsum(0.5 * (post[1:] + post[:-1]) * np.diff(grid))])
@@ -377,6 +392,6 @@ def dispersion_resolution(
         "sigma_p16_kms": at(0.16),
         "sigma_p84_kms": at(0.84),
         "sigma_upper95_kms": at(0.95),
-        "method": "profile in a constant sigma_los at the stars-only posterior median v_sys and "
-        "binary fraction, members weighted by their membership probability",
+        "method": "constant sigma_los on a grid at the posterior median v_sys, binary fraction "
+        "marginalised, members weighted by their membership probability",
     }

@@ -41,7 +41,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 from astropy.coordinates import SkyCoord
-from astropy.table import Table
+from astropy.table import Table, vstack
 from scipy.interpolate import PchipInterpolator
 
 from halo.anisotropy import ANISOTROPIES, Constant, OsipkovMerritt
@@ -629,6 +629,48 @@ def _name_of(obj, registry):
     return next((k for k, cls in registry.items() if isinstance(obj, cls)), type(obj).__name__)
 
 
+DEFAULT_FOREGROUND = ((50.0, 40.0, 0.6), (-30.0, 90.0, 0.4))
+
+
+def _default_population():
+    from halo.binaries import BinaryPopulation
+
+    return BinaryPopulation()
+
+
+def _foreground_rows(
+    sat, n, field_radius_pc, components, v_sys, err_range, epochs, repeat_fraction, rng, id0
+):
+    """Non-member rows: uniform over a disc about the centre, broad velocities, same epochs."""
+    r_max = (5.0 * sat.r_half_pc if field_radius_pc is None else float(field_radius_pc)) * 1e-3
+    comp = np.asarray(DEFAULT_FOREGROUND if components is None else components, dtype=float)
+    rad = r_max * np.sqrt(rng.uniform(size=n))
+    phi = rng.uniform(0.0, 2 * np.pi, n)
+    ra, dec = sky_coordinates(
+        rad * np.sin(phi), rad * np.cos(phi), sat.ra_deg, sat.dec_deg, sat.distance_kpc
+    )
+    k = rng.choice(len(comp), size=n, p=comp[:, 2] / comp[:, 2].sum())
+    v_true = v_sys + comp[k, 0] + comp[k, 1] * rng.standard_normal(n)
+    star = np.tile(np.arange(n), len(epochs))
+    keep = np.ones(star.size, dtype=bool)
+    if epochs[0] is not None and repeat_fraction < 1:
+        repeated = rng.uniform(size=n) < repeat_fraction
+        keep = (np.repeat(np.arange(len(epochs)), n) == 0) | repeated[star]
+    star = star[keep]
+    err = rng.uniform(err_range[0], err_range[1], star.size)
+    t = Table()
+    t["id"] = star + id0
+    t["ra"] = u.Quantity(ra[star], u.deg)
+    t["dec"] = u.Quantity(dec[star], u.deg)
+    t["vlos"] = u.Quantity(v_true[star] + err * rng.standard_normal(star.size), u.km / u.s)
+    t["vlos_err"] = u.Quantity(err, u.km / u.s)
+    if epochs[0] is not None:
+        t["mjd"] = np.repeat(np.array(epochs, dtype=float), n)[keep]
+    t.meta["field_radius_pc"] = r_max * 1e3
+    t.meta["components"] = [[float(x) for x in c] for c in comp]
+    return t
+
+
 def make_mock(
     satellite,
     dark=None,
@@ -644,6 +686,12 @@ def make_mock(
     velocity_offsets=None,
     df_options=None,
     allow_unphysical=False,
+    repeat_fraction=1.0,
+    binary_fraction=0.0,
+    binary_population=None,
+    n_foreground=0,
+    foreground_components=None,
+    field_radius_pc=None,
 ):
     """Mock velocity catalogue of a satellite with a known truth.
 
@@ -670,6 +718,15 @@ def make_mock(
     df_options : keyword arguments for :func:`distribution_function`
     allow_unphysical : with ``method="df"``, sample max(f, 0) when f < 0 somewhere instead of
         raising :class:`halo.errors.InputError` (``truth["df_physical"]`` records it)
+    repeat_fraction : with several epochs, the fraction of stars observed at every epoch (the
+        others only at the first), chosen at random
+    binary_fraction : fraction of the members that are binaries; each binary's orbit is drawn
+        from ``binary_population`` (default :class:`halo.binaries.BinaryPopulation`) orbit by
+        orbit and its line-of-sight orbital velocity added at every epoch (t = mjd - first epoch)
+    n_foreground : non-member stars added uniformly over a disc of ``field_radius_pc`` (default
+        5 major-axis half-light radii), with velocities from ``foreground_components``: (offset
+        from v_sys, sigma, weight) [km/s], default ((50, 40, 0.6), (-30, 90, 0.4)) (a broad
+        two-component stand-in for a Galactic field, common practice)
 
     Returns
     -------
@@ -723,7 +780,27 @@ def make_mock(
     offsets = np.zeros(n_rows)
     if velocity_offsets is not None:
         offsets = np.asarray(velocity_offsets(rng, star, mjd), dtype=float).reshape(n_rows)
+    is_binary = np.zeros(n_stars, dtype=bool)
+    bin_period = np.full(n_stars, np.nan)
+    bin_k = np.full(n_stars, np.nan)
+    if binary_fraction > 0:
+        from halo.binaries import BinaryPopulation, los_velocity, sample_orbits
+
+        pop = BinaryPopulation() if binary_population is None else binary_population
+        is_binary = rng.uniform(size=n_stars) < binary_fraction
+        orb = sample_orbits(pop, n_stars, rng)
+        per_row = dataclasses.replace(
+            orb, **{f.name: getattr(orb, f.name)[star] for f in dataclasses.fields(orb)}
+        )
+        t = np.zeros(n_rows) if mjd is None else mjd - mjd.min()
+        offsets = offsets + np.where(is_binary[star], los_velocity(per_row, t), 0.0)
+        bin_period = np.where(is_binary, orb.period_days, np.nan)
+        bin_k = np.where(is_binary, orb.k_kms, np.nan)
     vlos = v_sys + v_true[star] + offsets + err * rng.standard_normal(n_rows)
+    keep = np.ones(n_rows, dtype=bool)
+    if mjd is not None and repeat_fraction < 1:
+        repeated = rng.uniform(size=n_stars) < repeat_fraction
+        keep = (mjd == mjd.min()) | repeated[star]
 
     r_half_3d = float(light.r_half_3d())
     truth = {
@@ -734,6 +811,12 @@ def make_mock(
         "error_range_kms": [lo_err, hi_err],
         "epochs_mjd": None if epochs_mjd is None else epochs,
         "velocity_offsets": velocity_offsets is not None,
+        "repeat_fraction": float(repeat_fraction),
+        "binary_fraction": float(binary_fraction),
+        "binary_population": None
+        if binary_fraction <= 0
+        else dataclasses.asdict(binary_population or _default_population()),
+        "n_binaries": int(is_binary.sum()),
         "satellite": sat.as_dict(),
         "light_profile": _name_of(light, LIGHT_PROFILES),
         "light": _params(light),
@@ -749,13 +832,32 @@ def make_mock(
         "df_physical": df_physical,
     }
     table = Table()
-    table["id"] = star
-    table["ra"] = u.Quantity(ra[star], u.deg)
-    table["dec"] = u.Quantity(dec[star], u.deg)
-    table["vlos"] = u.Quantity(vlos, u.km / u.s)
-    table["vlos_err"] = u.Quantity(err, u.km / u.s)
+    table["id"] = star[keep]
+    table["ra"] = u.Quantity(ra[star][keep], u.deg)
+    table["dec"] = u.Quantity(dec[star][keep], u.deg)
+    table["vlos"] = u.Quantity(vlos[keep], u.km / u.s)
+    table["vlos_err"] = u.Quantity(err[keep], u.km / u.s)
     if mjd is not None:
-        table["mjd"] = mjd
+        table["mjd"] = mjd[keep]
+    if n_foreground > 0:
+        fg = _foreground_rows(
+            sat,
+            int(n_foreground),
+            field_radius_pc,
+            foreground_components,
+            v_sys,
+            (lo_err, hi_err),
+            epochs,
+            repeat_fraction,
+            rng,
+            n_stars,
+        )
+        truth["n_foreground"] = int(n_foreground)
+        truth["foreground_ids"] = [int(i) for i in np.unique(fg["id"])]
+        truth["field_radius_pc"] = float(fg.meta["field_radius_pc"])
+        truth["foreground_components"] = fg.meta["components"]
+        fg.meta.clear()
+        table = vstack([table, fg])
     table.meta["truth"] = truth
     q = 1.0 - sat.ellipticity
     stars = Table(
@@ -773,6 +875,9 @@ def make_mock(
             "v_theta": vel.v_theta,
             "v_phi": vel.v_phi,
             "vlos_true": v_true,
+            "is_binary": is_binary,
+            "binary_period_days": bin_period,
+            "binary_k_kms": bin_k,
         }
     )
     return MockCatalogue(table=table, truth=truth, stars=stars)

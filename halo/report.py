@@ -73,7 +73,8 @@ def format_summary(summary, out_dir=None):
     est = summary["estimators"]
     if est.get("sigma_los_kms") is not None:
         lines.append(
-            f"global dispersion {est['sigma_los_kms']:.2f} +- {est['sigma_los_err_kms']:.2f} km/s;"
+            f"global dispersion {est['sigma_los_kms']:.2f} +- {est['sigma_los_err_kms']:.2f} km/s"
+            f" ({est.get('n_stars_used', cat['n_stars'])} stars: {est.get('selection', 'all')});"
             f" estimators: Walker09 {_g(est.get('walker2009_msun'))}, Wolf10 "
             f"{_g(est.get('wolf2010_msun'))}, Errani18 {_g(est.get('errani2018_msun'))} Msun"
         )

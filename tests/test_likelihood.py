@@ -188,6 +188,9 @@ def test_dispersion_resolution():
     r0 = dispersion_resolution(v0, np.full(30, 2.0), 0.0)
     assert not r0["resolved"]
     assert 0.0 < r0["sigma_upper95_kms"] < 3.0
+    # with binaries (fraction marginalised) the dispersion is harder to resolve, never easier
+    rb = dispersion_resolution(v, err, 0.0, binaries=load_mixture())
+    assert rb["two_delta_ln_l"] <= r["two_delta_ln_l"] and rb["resolved"]
 
 
 def _model_gradient(binaries, foreground, member_prob=None):

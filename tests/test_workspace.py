@@ -1,0 +1,158 @@
+"""Workspaces: stars added in three batches, versions, conflicts, reuse, history, a killed refit.
+
+The catalogue is a distribution-function mock of the demo satellite (halo.mock) split into three
+observing runs: first epochs of 45 stars; 20 new stars plus second epochs; 15 more stars. Fits are
+kept small (2 chains x 150 + 150, nfw and stars-only, no binaries, no foreground) since the
+point here is the bookkeeping, not the posterior. The kill is a real SIGKILL of a `halo refit`
+subprocess while it is fitting.
+"""
+
+import hashlib
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from halo.cli.app import main
+from halo.cosmology import rho_crit
+from halo.dark import CoreNFW
+from halo.demo import demo_satellite_path
+from halo.mock import make_mock
+from halo.satellite import read_satellite
+from halo.workspace import Workspace, history, status
+
+FIT = ["--chains", "2", "--warmup", "150", "--draws", "150", "--no-binaries",
+       "--no-foreground", "--quiet"]  # fmt: skip
+
+
+def _batches(folder):
+    sat = read_satellite(demo_satellite_path())
+    dark = CoreNFW.from_m200_c200(1.5e9, 18.0, rho_c=rho_crit(), r_c=0.06, n=1.0)
+    mock = make_mock(
+        sat, dark, n_stars=80, v_sys=87.3, error_range_kms=(1.0, 2.0), seed=12,
+        epochs_mjd=(60000.0, 60365.0),
+    )  # fmt: skip
+    t = mock.table
+    t.meta.clear()
+    ids, mjd = np.asarray(t["id"]), np.asarray(t["mjd"])
+    first = mjd == 60000.0
+    parts = {
+        "b1": t[(ids < 45) & first],
+        "b2": t[((ids >= 45) & (ids < 65) & first) | ((ids < 45) & ~first)],
+        "b3": t[(ids >= 65) & first],
+    }
+    paths = {}
+    for k, part in parts.items():
+        paths[k] = folder / f"{k}.ecsv"
+        part.write(paths[k], format="ascii.ecsv")
+    bad = parts["b1"][:4].copy()
+    bad["vlos"][2] += 5.0
+    paths["conflict"] = folder / "conflict.ecsv"
+    bad.write(paths["conflict"], format="ascii.ecsv")
+    return paths
+
+
+def _objects_intact(ws):
+    for p in ws.objects.iterdir():
+        assert hashlib.sha256(p.read_bytes()).hexdigest() == p.stem, p
+
+
+@pytest.fixture(scope="module")
+def workspace(tmp_path_factory):
+    tmp = tmp_path_factory.mktemp("ws")
+    paths = _batches(tmp)
+    root = tmp / "W"
+    assert main(["init", str(root), "--satellite", "demo", "--model", "nfw"]) == 0
+    return root, paths
+
+
+def test_three_batches(workspace, capsys, tmp_path):
+    root, paths = workspace
+    ws = Workspace(root)
+    # batch 1, twice: the second add changes nothing
+    assert main(["add", str(root), str(paths["b1"])]) == 0
+    v1 = ws.latest_catalogue()
+    assert main(["add", str(root), str(paths["b1"])]) == 0
+    assert ws.latest_catalogue() == v1 and "nothing new" in capsys.readouterr().out
+    # a conflicting measurement is refused with one line naming file, row and column
+    assert main(["add", str(root), str(paths["conflict"])]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "conflict.ecsv: row 3, column 'vlos'" in err
+    assert ws.latest_catalogue() == v1
+    # first run, then a refit with nothing changed reuses it without fitting
+    assert main(["refit", str(root), *FIT]) == 0
+    capsys.readouterr()
+    t0 = time.perf_counter()
+    assert main(["refit", str(root), "--quiet"]) == 0  # settings remembered from the last run
+    assert "nothing changed since run 1" in capsys.readouterr().out
+    assert time.perf_counter() - t0 < 30
+    # batch 2: new stars and second epochs -> version 2, stale, warm-started refit
+    assert main(["add", str(root), str(paths["b2"])]) == 0
+    v2 = ws.latest_catalogue()
+    assert v2["seq"] == 2 and v2["n_stars"] == 65 and v2["n_rows"] == 110
+    st = status(root)
+    assert any("catalogue version 2 is newer" in s for s in st["stale"])
+    assert st["next"] == {"nfw": "warm", "stars-only": "warm"}
+    assert main(["refit", str(root), "--quiet"]) == 0
+    s2 = json.loads((root / "runs" / "0002" / "summary.json").read_text())
+    assert s2["catalogue"]["n_stars"] == 65 and s2["models"]["nfw"]["warm_start"] is not None
+    # a new model spec: only it is fitted, the others are reused from run 2
+    spec = tmp_path / "stars-plain.toml"
+    spec.write_text(
+        'description = "stars alone, isotropic"\\ndark_profile = "none"\\n'
+        'anisotropy = "constant"\\n[parameters.beta]\\nprior = "fixed"\\nvalue = 0.0\\n'
+    )
+    assert main(["refit", str(root), "--model", str(spec), "--quiet"]) == 0
+    s3 = json.loads((root / "runs" / "0003" / "summary.json").read_text())
+    assert s3["models"]["nfw"]["reused_from"].endswith("0002")
+    assert s3["models"]["stars-only"]["reused_from"].endswith("0002")
+    assert s3["models"]["stars-plain"]["reused_from"] is None
+    assert s3["models"]["nfw"]["evidence"] == s2["models"]["nfw"]["evidence"]
+    _objects_intact(ws)
+
+
+def test_killed_refit_leaves_everything_intact(workspace, capsys):
+    root, paths = workspace
+    ws = Workspace(root)
+    before = history(root)
+    assert len(before) == 3
+    assert main(["add", str(root), str(paths["b3"])]) == 0
+    env = dict(os.environ)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "halo.cli", "refit", str(root), "--quiet"],
+        env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+    )  # fmt: skip
+    partial = root / "runs" / ".partial-0004"
+    deadline = time.time() + 120
+    while time.time() < deadline and not (partial / "stars-only" / "posterior.nc").exists():
+        assert proc.poll() is None, proc.communicate()
+        time.sleep(0.2)
+    assert partial.exists(), "the refit never started fitting"
+    # while it runs the workspace is locked: a second writer is refused with a clear message
+    assert main(["add", str(root), str(paths["b3"])]) == 2
+    assert "busy" in capsys.readouterr().err
+    proc.send_signal(signal.SIGKILL)
+    proc.wait(timeout=30)
+    # everything from before is intact and readable
+    assert history(root) == before
+    _objects_intact(ws)
+    for r in before:
+        json.loads((root / "runs" / r["folder"] / "summary.json").read_text())
+    assert ws.latest_catalogue()["n_stars"] == 80
+    assert any("newer" in s for s in status(root)["stale"])
+    # the next refit cleans up and completes
+    assert main(["refit", str(root), "--quiet"]) == 0
+    assert not partial.exists()
+    rows = history(root)
+    assert [r["n_stars"] for r in rows] == [45, 65, 65, 80]
+    assert main(["history", str(root), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert len(out["runs"]) == 4
+    assert main(["history", str(root)]) == 0
+    assert (Path(root) / "history.png").stat().st_size > 10_000
