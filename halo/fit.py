@@ -729,4 +729,7 @@ def fit(
     write_summary_table(summary, out_dir / "summary.ecsv")
     _write_members(out_dir / "members.ecsv", stars, results, names, satellite)
     write_json(out_dir / "summary.json", summary)
+    from halo.html_report import write_html_report
+
+    write_html_report(out_dir)
     return summary

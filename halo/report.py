@@ -137,7 +137,8 @@ def format_summary(summary, out_dir=None):
     if out_dir is not None:
         lines.append("")
         lines.append(
-            f"results in {out_dir}/: summary.json, summary.ecsv, <model>/posterior.nc, figures/"
+            f"results in {out_dir}/: report.html, summary.json, summary.ecsv, members.ecsv, "
+            "<model>/posterior.nc, figures/"
         )
     return "\n".join(lines)
 

@@ -5,6 +5,7 @@ Layout of a workspace folder DIR::
     DIR/workspace.sqlite        the record: catalogue versions, satellite and spec versions, runs
     DIR/objects/<sha256>.ecsv   catalogue versions (immutable, named by the hash of their content)
     DIR/objects/<sha256>.toml   satellite file and model spec versions (immutable)
+    DIR/specs/<sha256>/<name>.toml   the same specs under their model names (immutable)
     DIR/runs/<NNNN>/            one fit output folder per run (summary.json, posteriors, figures)
     DIR/.lock                   held (fcntl) by the command that writes
 
@@ -196,7 +197,7 @@ def _spec_bytes(name):
 
 def init_workspace(root, satellite_file, models=None):
     """Create a workspace at ``root`` for the satellite file; returns the Workspace."""
-    from halo.fit import DEFAULT_MODELS
+    from halo.fit import DEFAULT_MODELS, STARS_ONLY
     from halo.satellite import read_satellite
 
     root = Path(root)
@@ -210,6 +211,8 @@ def init_workspace(root, satellite_file, models=None):
     for m in models or DEFAULT_MODELS:
         name, text = _spec_bytes(m)
         specs[name] = text
+    if STARS_ONLY not in specs:  # always fitted: every model is compared with it
+        specs[STARS_ONLY] = _spec_bytes(STARS_ONLY)[1]
     root.mkdir(parents=True, exist_ok=True)
     ws = Workspace(root)
     ws.objects.mkdir(exist_ok=True)
@@ -523,10 +526,11 @@ def refit(root, settings=None, force=False, say=print, models=None):
         stars = read_catalogue(ws.catalogue_path(plan["catalogue"]["sha256"]), sat)
         models = []
         for name, sha in plan["specs"].items():
-            path = ws.object_path(sha, ".toml")
-            named = partial / "specs" / f"{name}.toml"
-            named.parent.mkdir(exist_ok=True)
-            shutil.copyfile(path, named)
+            # a stable, immutable copy under the spec's own name (its file name is its name)
+            named = ws.root / "specs" / sha / f"{name}.toml"
+            if not named.is_file():
+                with atomic_path(named) as tmp:
+                    shutil.copyfile(ws.object_path(sha, ".toml"), tmp)
             models.append(str(named))
         reuse = {
             n: ws.runs / src for n, (a, src) in plan["models"].items() if a == "reuse" and not force

@@ -65,7 +65,7 @@ def test_unresolved_dispersion_gives_upper_limits(unresolved, capsys):
     summary = json.loads((out / "summary.json").read_text())
     d = summary["dispersion"]
     assert d["resolved"] is False and d["two_delta_ln_l"] < 4
-    assert 0 < d["sigma_upper95_kms"] < 2.0
+    assert 0 < d["sigma_upper95_kms"] < 3.0  # errors 2-3 km/s, 40 stars
     assert any("NOT RESOLVED" in w for w in summary["warnings"])
     ul = summary["upper_limits"]["nfw"]
     q = summary["models"]["nfw"]["derived"]["m_half_msun"]

@@ -105,8 +105,8 @@ def test_three_batches(workspace, capsys, tmp_path):
     # a new model spec: only it is fitted, the others are reused from run 2
     spec = tmp_path / "stars-plain.toml"
     spec.write_text(
-        'description = "stars alone, isotropic"\\ndark_profile = "none"\\n'
-        'anisotropy = "constant"\\n[parameters.beta]\\nprior = "fixed"\\nvalue = 0.0\\n'
+        'description = "stars alone, isotropic"\ndark_profile = "none"\n'
+        'anisotropy = "constant"\n[parameters.beta]\nprior = "fixed"\nvalue = 0.0\n'
     )
     assert main(["refit", str(root), "--model", str(spec), "--quiet"]) == 0
     s3 = json.loads((root / "runs" / "0003" / "summary.json").read_text())
@@ -124,14 +124,16 @@ def test_killed_refit_leaves_everything_intact(workspace, capsys):
     assert len(before) == 3
     assert main(["add", str(root), str(paths["b3"])]) == 0
     env = dict(os.environ)
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "halo.cli", "refit", str(root), "--quiet"],
-        env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-    )  # fmt: skip
+    log = root.parent / "killed-refit.log"
+    with open(log, "wb") as err_file:
+        proc = subprocess.Popen(
+            [sys.executable, "-m", "halo.cli", "refit", str(root), "--quiet"],
+            env=env, stdout=subprocess.DEVNULL, stderr=err_file,
+        )  # fmt: skip
     partial = root / "runs" / ".partial-0004"
     deadline = time.time() + 120
     while time.time() < deadline and not (partial / "stars-only" / "posterior.nc").exists():
-        assert proc.poll() is None, proc.communicate()
+        assert proc.poll() is None, log.read_text()
         time.sleep(0.2)
     assert partial.exists(), "the refit never started fitting"
     # while it runs the workspace is locked: a second writer is refused with a clear message
@@ -151,8 +153,22 @@ def test_killed_refit_leaves_everything_intact(workspace, capsys):
     assert not partial.exists()
     rows = history(root)
     assert [r["n_stars"] for r in rows] == [45, 65, 65, 80]
+    capsys.readouterr()
     assert main(["history", str(root), "--json"]) == 0
     out = json.loads(capsys.readouterr().out)
     assert len(out["runs"]) == 4
     assert main(["history", str(root)]) == 0
     assert (Path(root) / "history.png").stat().st_size > 10_000
+
+
+def test_export_latest_run(workspace, tmp_path, capsys):
+    from astropy.table import Table
+
+    root, _ = workspace
+    out = tmp_path / "deliver"
+    assert main(["export", str(root), "--out", str(out), "--angles-deg", "0.3"]) == 0
+    assert "runs/0004" in capsys.readouterr().out
+    t = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
+    assert set(t["model"]) == {"nfw"} and sorted(set(t["angle_deg"])) == [0.1, 0.2, 0.3, 0.5]
+    assert (out / "nfw_dj_domega.fits").is_file() and (out / "summary.json").is_file()
+    assert main(["export", str(root), "--out", str(out)]) == 2  # never overwrites
