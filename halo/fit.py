@@ -286,7 +286,10 @@ def _model_result(
             except (OSError, KeyError, ValueError):
                 init = None
             if init is not None:
-                warmup = max(WARM_WARMUP_MIN, int(WARM_WARMUP_FRACTION * settings.warmup))
+                warmup = min(
+                    settings.warmup,
+                    max(WARM_WARMUP_MIN, int(WARM_WARMUP_FRACTION * settings.warmup)),
+                )
                 start = {"from": str(warm), "warmup": warmup}
                 _say(f"[{name}] warm start from {warm} ({warmup} warmup iterations)", settings)
         else:

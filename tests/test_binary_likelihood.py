@@ -57,7 +57,7 @@ def fits(tmp_path_factory):
     out = {"offsets": _binary_offsets(0.5, 7)(None, np.arange(80), None), "dirs": {}}
     for flag in (False, True):
         settings = FitSettings(
-            chains=2, warmup=400, draws=400, seed=1, progress=False, binaries=flag
+            chains=2, warmup=300, draws=300, seed=1, progress=False, binaries=flag
         )
         out["dirs"][flag] = tmp_path_factory.mktemp(f"b{flag}")
         out[flag] = fit(stars, sat, out["dirs"][flag], ["nfw"], settings)

@@ -161,6 +161,18 @@ def test_killed_refit_leaves_everything_intact(workspace, capsys):
     assert (Path(root) / "history.png").stat().st_size > 10_000
 
 
+def test_replace_keeps_the_old_version(workspace, capsys):
+    root, paths = workspace
+    ws = Workspace(root)
+    old = ws.latest_catalogue()
+    assert main(["add", str(root), str(paths["conflict"]), "--replace"]) == 0
+    assert "1 replaced" in capsys.readouterr().out
+    new = ws.latest_catalogue()
+    assert new["seq"] == old["seq"] + 1 and new["n_rows"] == old["n_rows"]
+    assert ws.catalogue_path(old["sha256"]).is_file()  # still retrievable
+    _objects_intact(ws)
+
+
 def test_export_latest_run(workspace, tmp_path, capsys):
     from astropy.table import Table
 
