@@ -67,7 +67,7 @@ def field_fit(tmp_path_factory):
     sat, table, truth = _field()
     stars = stars_from_table(table, sat, source="field-mock")
     out = tmp_path_factory.mktemp("field")
-    settings = FitSettings(chains=2, warmup=400, draws=400, seed=4, progress=False)
+    settings = FitSettings(chains=2, warmup=300, draws=300, seed=4, progress=False)
     summary = fit(stars, sat, out, ["cored"], settings)
     members = Table.read(out / "members.ecsv", format="ascii.ecsv")
     is_member = np.asarray(members["id"]).astype(int) < 100000

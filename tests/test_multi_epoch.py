@@ -55,7 +55,7 @@ def two_epoch_fit(tmp_path_factory):
     )
     stars = stars_from_table(mock.table, sat, source="two-epoch-cluster")
     out = tmp_path_factory.mktemp("two_epoch")
-    settings = FitSettings(chains=2, warmup=400, draws=400, seed=2, progress=False)
+    settings = FitSettings(chains=2, warmup=300, draws=300, seed=2, progress=False)
     summary = fit(stars, sat, out, ["nfw"], settings)
     ids = np.arange(N_STARS)
     v0 = offsets(None, ids, np.full(N_STARS, EPOCHS[0]))
