@@ -135,6 +135,10 @@ class Orbits:
     def __len__(self):
         return len(self.period_days)
 
+    def take(self, index):
+        """The orbits selected by ``index`` (integer array or boolean mask), in that order."""
+        return Orbits(*(getattr(self, f.name)[index] for f in dataclasses.fields(Orbits)))
+
     @property
     def semi_major_axis_rsun(self):
         """Relative-orbit semi-major axis a = A_UNIT (m_tot)^(1/3) P^(2/3) [Rsun] (Kepler III)."""
@@ -218,7 +222,7 @@ def sample_orbits(pop, n, rng):
         need = n - have
         orb = _draw(pop, int(1.25 * need) + 64, rng)
         keep = _roche_ok(pop, orb)
-        parts.append(Orbits(*(getattr(orb, f.name)[keep] for f in dataclasses.fields(Orbits))))
+        parts.append(orb.take(keep))
         have += int(keep.sum())
     return Orbits(
         *(

@@ -174,9 +174,6 @@ class _Likelihoods:
         self.stars, self.settings, self.foreground_on = stars, settings, foreground_on
         self._cache = {}
 
-    def plain_data(self):
-        return self.get(None)[1]
-
     def get(self, spec):
         from halo.binaries import BinaryPopulation, fit_mixture, load_mixture
         from halo.likelihood import epoch_terms

@@ -789,9 +789,7 @@ def make_mock(
         pop = BinaryPopulation() if binary_population is None else binary_population
         is_binary = rng.uniform(size=n_stars) < binary_fraction
         orb = sample_orbits(pop, n_stars, rng)
-        per_row = dataclasses.replace(
-            orb, **{f.name: getattr(orb, f.name)[star] for f in dataclasses.fields(orb)}
-        )
+        per_row = orb.take(star)
         t = np.zeros(n_rows) if mjd is None else mjd - mjd.min()
         offsets = offsets + np.where(is_binary[star], los_velocity(per_row, t), 0.0)
         bin_period = np.where(is_binary, orb.period_days, np.nan)
