@@ -129,6 +129,7 @@ def test_killed_refit_leaves_everything_intact(workspace, capsys):
         proc = subprocess.Popen(
             [sys.executable, "-m", "halo.cli", "refit", str(root), "--quiet"],
             env=env, stdout=subprocess.DEVNULL, stderr=err_file,
+            cwd=root.parent,  # not the source tree: ./halo there would shadow the install
         )  # fmt: skip
     partial = root / "runs" / ".partial-0004"
     deadline = time.time() + 120
