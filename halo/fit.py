@@ -224,28 +224,40 @@ def load_posterior(run_dir, name):
     return idata, samples
 
 
-#: warm start: warmup iterations used when the chains start from an earlier posterior
-WARM_WARMUP_FRACTION = 0.25
-WARM_WARMUP_MIN = 200
+#: warm start: the chains start at draws of an earlier posterior of the same model and keep its
+#: covariance as their (dense) mass matrix, so the warmup only adapts the step size and needs
+#: this fraction of the requested iterations (at least WARM_WARMUP_MIN)
+WARM_WARMUP_FRACTION = 0.2
+WARM_WARMUP_MIN = 150
 
 
 def _warm_init(model, latent, prev_samples, chains, seed):
-    """Unconstrained starting points: ``chains`` random draws of an earlier posterior, or None
-    when the earlier run lacks one of the model's sites."""
+    """Warm start from an earlier posterior: (unconstrained starting points for ``chains``
+    chains, inverse mass matrix = covariance of the unconstrained draws over the latent sites in
+    sorted name order, as numpyro's dense mass matrix orders them), or None when the earlier run
+    lacks one of the model's sites."""
     from halo.evidence import unconstrained_draws
 
     if any(k not in prev_samples for k in latent):
         return None
-    n = len(prev_samples[latent[0]])
+    names = sorted(latent)
+    n = len(prev_samples[names[0]])
+    sub = {k: np.asarray(prev_samples[k]) for k in names}
+    flat, layout = unconstrained_draws(model, sub, names)
+    if not np.all(np.isfinite(flat)):
+        return None
     pick = np.random.default_rng(seed).choice(n, size=chains, replace=n < chains)
-    sub = {k: np.asarray(prev_samples[k])[pick] for k in latent}
-    flat, layout = unconstrained_draws(model, sub, latent)
     out, i = {}, 0
     for k, size in layout:
         shape = np.shape(sub[k])[1:]
-        out[k] = flat[:, i : i + size].reshape((chains,) + shape)
+        out[k] = flat[pick, i : i + size].reshape((chains,) + shape)
         i += size
-    return out
+    m = len(flat)
+    cov = np.atleast_2d(np.cov(flat, rowvar=False))
+    # the same light regularisation numpyro applies to its own warmup estimate (keeps the
+    # matrix positive definite without blurring strong correlations)
+    cov = m / (m + 5.0) * cov + 1e-3 * 5.0 / (m + 5.0) * np.eye(len(cov))
+    return out, cov
 
 
 def _model_result(
@@ -275,22 +287,25 @@ def _model_result(
         with atomic_path(post_path) as tmp:
             shutil.copyfile(Path(reuse) / name / "posterior.nc", tmp)
     else:
-        warmup = settings.warmup
+        warmup, init, inv_mass = settings.warmup, None, None
         if warm is not None:
             try:
                 _, prev_samples = load_posterior(warm, name)
-                init = _warm_init(model, latent, prev_samples, settings.chains, settings.seed)
+                got = _warm_init(model, latent, prev_samples, settings.chains, settings.seed)
             except (OSError, KeyError, ValueError):
-                init = None
-            if init is not None:
+                got = None
+            if got is not None:
+                init, inv_mass = got
                 warmup = min(
                     settings.warmup,
                     max(WARM_WARMUP_MIN, int(WARM_WARMUP_FRACTION * settings.warmup)),
                 )
-                start = {"from": str(warm), "warmup": warmup}
-                _say(f"[{name}] warm start from {warm} ({warmup} warmup iterations)", settings)
-        else:
-            init = None
+                start = {"from": str(warm), "warmup": warmup, "mass_matrix": "earlier posterior"}
+                _say(
+                    f"[{name}] warm start from {warm} ({warmup} warmup iterations, mass matrix "
+                    "of the earlier posterior)",
+                    settings,
+                )
         _say(
             f"[{name}] sampling: {settings.chains} chains x {warmup} warmup + "
             f"{settings.draws} draws",
@@ -304,6 +319,8 @@ def _model_result(
             seed=settings.seed,
             progress=settings.progress,
             init_params=init,
+            inverse_mass_matrix=inv_mass,
+            adapt_mass_matrix=inv_mass is None,
         )
         t_sample = time.perf_counter() - t0
         samples = {k: np.asarray(v) for k, v in mcmc.get_samples().items()}

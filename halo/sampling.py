@@ -77,6 +77,8 @@ def run_nuts(
     max_tree_depth=8,
     dense_mass=True,
     init_params=None,
+    inverse_mass_matrix=None,
+    adapt_mass_matrix=True,
 ):
     """Run NUTS on ``model`` and return the numpyro MCMC object (samples, extra fields).
 
@@ -89,6 +91,10 @@ def run_nuts(
     uniformly in (-1, 1) of the unconstrained space, independently per chain from ``seed``; the
     run is reproducible run to run. With ``progress`` a bar on stderr
     counts the iterations of all chains (warmup and draws).
+
+    ``inverse_mass_matrix``: optional starting inverse mass matrix (dense: the covariance of the
+    unconstrained latent sites in sorted name order, e.g. of an earlier posterior); with
+    ``adapt_mass_matrix=False`` it is kept and the warmup only adapts the step size.
     """
     import jax
     from numpyro.infer import MCMC, init_to_uniform
@@ -101,6 +107,8 @@ def run_nuts(
         max_tree_depth=max_tree_depth,
         init_strategy=init_to_uniform(radius=1.0),
         dense_mass=dense_mass,
+        inverse_mass_matrix=inverse_mass_matrix,
+        adapt_mass_matrix=adapt_mass_matrix,
     )
     mcmc = MCMC(
         kernel,
