@@ -23,7 +23,7 @@ from halo.demo import demo_satellite_path
 from halo.fit import FitSettings
 from halo.mock import make_mock
 from halo.satellite import read_satellite
-from halo.workspace import add_catalogue, history, init_workspace, refit
+from halo.workspace import add_catalogue, history, init_workspace, latest_run_folder, refit
 
 
 def main():
@@ -52,7 +52,7 @@ def main():
     init_workspace(b, demo_satellite_path(), ["nfw"])
     add_catalogue(a, tmp / "first.ecsv")
     add_catalogue(b, tmp / "all.ecsv")
-    times = {}
+    times, folders = {}, {}
     for label, root, extra in (("A: 100 stars, fresh", a, None), ("B: 110 stars, fresh", b, None),
                                ("A: +10 stars, refit", a, "more"),
                                ("A: nothing changed", a, "none")):  # fmt: skip
@@ -61,6 +61,7 @@ def main():
         t0 = time.perf_counter()
         refit(root, settings, say=quiet)
         times[label] = time.perf_counter() - t0
+        folders[label] = latest_run_folder(root)
     ref = times["B: 110 stars, fresh"]
     print(f"{args.chains} chains x ({args.warmup} + {args.draws}); models nfw, stars-only")
     for k, v in times.items():
@@ -74,6 +75,15 @@ def main():
             f"  fresh {qb['median']:.3g} [{qb['p16']:.3g}, {qb['p84']:.3g}]"
             f"  converged {ma['converged']} / {mb['converged']}"
         )
+    import json
+
+    print("per model: sampling time incl. compilation [s], min bulk ESS, ESS per sampling second")
+    for label in ("A: +10 stars, refit", "B: 110 stars, fresh"):
+        s = json.loads((folders[label] / "summary.json").read_text())
+        for name, m in s["models"].items():
+            t, ess = m["sampling_time_s"], m["diagnostics"]["ess_bulk_min"]
+            print(f"{label:>24} {name:>11}: {t:6.1f} s  ESS {ess:6.0f}  {ess / t:6.1f}/s"
+                  f"  (whole model {m['time_s']:.1f} s)")
 
 
 if __name__ == "__main__":

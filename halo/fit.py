@@ -544,6 +544,7 @@ def _summarise_model(res, settings):
             "warnings": res["loo_warnings"],
         },
         "time_s": res["time_s"],
+        "sampling_time_s": res["sampling_time_s"],
         "binary_fraction": (
             quantiles(res["samples"]["f_binary"]) if "f_binary" in res["samples"] else None
         ),
