@@ -82,8 +82,10 @@ def main():
         s = json.loads((folders[label] / "summary.json").read_text())
         for name, m in s["models"].items():
             t, ess = m["sampling_time_s"], m["diagnostics"]["ess_bulk_min"]
-            print(f"{label:>24} {name:>11}: {t:6.1f} s  ESS {ess:6.0f}  {ess / t:6.1f}/s"
-                  f"  (whole model {m['time_s']:.1f} s)")
+            print(
+                f"{label:>24} {name:>11}: {t:6.1f} s  ESS {ess:6.0f}  {ess / t:6.1f}/s"
+                f"  (whole model {m['time_s']:.1f} s)"
+            )
 
 
 if __name__ == "__main__":

@@ -101,4 +101,3 @@ def test_bridge_agrees_with_nested_sampling_on_a_jeans_model():
     log_z, err = nested_sampling_evidence(model, sites, nlive=300, seed=3)
     tol = 3 * np.hypot(bridge.log_z_err, err) + 0.05
     assert abs(bridge.log_z - log_z) < tol, (bridge, log_z, err)
-
