@@ -287,15 +287,17 @@ def _model_result(
         with atomic_path(post_path) as tmp:
             shutil.copyfile(Path(reuse) / name / "posterior.nc", tmp)
     else:
-        warmup, init, inv_mass = settings.warmup, None, None
+        warmup, init, inv_mass, adapt = settings.warmup, None, None, True
         if warm is not None:
             try:
+                prev_entry = json.loads((Path(warm) / "summary.json").read_text())["models"][name]
                 _, prev_samples = load_posterior(warm, name)
                 got = _warm_init(model, latent, prev_samples, settings.chains, settings.seed)
             except (OSError, KeyError, ValueError):
                 got = None
-            if got is not None:
+            if got is not None and prev_entry.get("converged", False):
                 init, inv_mass = got
+                adapt = False
                 warmup = min(
                     settings.warmup,
                     max(WARM_WARMUP_MIN, int(WARM_WARMUP_FRACTION * settings.warmup)),
@@ -304,6 +306,16 @@ def _model_result(
                 _say(
                     f"[{name}] warm start from {warm} ({warmup} warmup iterations, mass matrix "
                     "of the earlier posterior)",
+                    settings,
+                )
+            elif got is not None:
+                # an unconverged posterior is no firm guide to the geometry: start there, but
+                # adapt the mass matrix over the full warmup
+                init, inv_mass = got
+                start = {"from": str(warm), "warmup": warmup, "mass_matrix": "adapted"}
+                _say(
+                    f"[{name}] warm start from {warm}; the earlier run did not converge: full "
+                    f"warmup ({warmup}), mass matrix adapted",
                     settings,
                 )
         _say(
@@ -320,7 +332,7 @@ def _model_result(
             progress=settings.progress,
             init_params=init,
             inverse_mass_matrix=inv_mass,
-            adapt_mass_matrix=inv_mass is None,
+            adapt_mass_matrix=adapt,
         )
         t_sample = time.perf_counter() - t0
         samples = {k: np.asarray(v) for k, v in mcmc.get_samples().items()}

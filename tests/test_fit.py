@@ -73,7 +73,7 @@ def cluster_fit(tmp_path_factory):
     mock = make_mock(sat, None, n_stars=60, v_sys=12.0, error_range_kms=(0.8, 1.5), seed=5)
     stars = stars_from_table(mock.table, sat, source="cluster-mock")
     out = tmp_path_factory.mktemp("cluster")
-    return fit(stars, sat, out, ["nfw"], SETTINGS), mock.truth
+    return fit(stars, sat, out, ["nfw"], SETTINGS), mock.truth, (stars, sat, out)
 
 
 def _inside(q, x, lo="p2.5", hi="p97.5"):
@@ -101,7 +101,7 @@ def test_dark_mock_favours_dark_matter(dwarf_fit):
 
 
 def test_cluster_does_not_favour_dark_matter(cluster_fit):
-    summary, _ = cluster_fit
+    summary, _, _ = cluster_fit
     c = summary["models"]["nfw"]["vs_stars_only"]
     assert c["ln_bayes_factor"] < 1.0, c
     assert "evidence for dark matter" not in c["verdict"] or c["ln_bayes_factor"] < 1.0
@@ -254,3 +254,29 @@ def test_cli_mock_writes_catalogue_and_truth(tmp_path, capsys):
         "c200=15",
     ]
     assert main(bad) == 2
+
+
+def test_warm_start_takes_the_mass_matrix_only_from_a_converged_run(cluster_fit, tmp_path, capsys):
+    # a converged earlier posterior gives the next run its draws as starting points and its
+    # covariance as the (fixed) mass matrix; an unconverged one is no firm guide to the
+    # geometry: the next run starts at its draws but adapts the mass matrix over the full warmup
+    import shutil
+
+    _, _, (stars, sat, out) = cluster_fit
+    quick = FitSettings(
+        chains=2, warmup=60, draws=60, seed=3, progress=True, binaries=False, foreground=False
+    )
+    for converged, matrix, message in (
+        (True, "earlier posterior", "(60 warmup iterations, mass matrix of the earlier posterior)"),
+        (False, "adapted", "did not converge: full warmup (60), mass matrix adapted"),
+    ):
+        prev = tmp_path / f"prev-{converged}"
+        shutil.copytree(out, prev)
+        s = json.loads((prev / "summary.json").read_text())
+        s["models"]["stars-only"]["converged"] = converged
+        (prev / "summary.json").write_text(json.dumps(s))
+        res = fit(stars, sat, tmp_path / f"next-{converged}", ["stars-only"], quick,
+                  warm={"stars-only": prev})  # fmt: skip
+        start = res["models"]["stars-only"]["warm_start"]
+        assert start["mass_matrix"] == matrix and start["warmup"] == quick.warmup
+        assert message in capsys.readouterr().err
