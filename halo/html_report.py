@@ -577,10 +577,28 @@ def _estimators(summary):
     )
 
 
+def _start(m):
+    """How a model's chains started: fresh, warm from an earlier run, or reused as they were."""
+    if m.get("reused_from"):
+        return f"reused from {_e(Path(m['reused_from']).name)} (inputs unchanged)"
+    w = m.get("warm_start")
+    if not w:
+        return "fresh"
+    matrix = {
+        "earlier posterior": "its mass matrix",
+        "adapted": "mass matrix adapted (that run had not converged)",
+    }.get(w.get("mass_matrix"), "")
+    return (
+        f"warm start from {_e(Path(str(w.get('from', ''))).name)}: {_e(w.get('warmup'))} "
+        f"warmup{', ' + matrix if matrix else ''}"
+    )
+
+
 def _diagnostics(summary):
     head = (
         "<tr><th>model</th><th>status</th><th>r-hat max</th><th>bulk ESS min</th>"
-        "<th>tail ESS min</th><th>divergences</th><th>BFMI min</th><th>problems</th></tr>"
+        "<th>tail ESS min</th><th>divergences</th><th>BFMI min</th><th>problems</th>"
+        "<th>chains</th></tr>"
     )
     rows = []
     for name, m in summary["models"].items():
@@ -601,7 +619,7 @@ def _diagnostics(summary):
             + cell(_fixed(tail, 0), not (_is_num(tail) and tail > ESS_MIN))
             + cell(_e(div), not (_is_num(div) and div == 0))
             + cell(_fixed(bfmi), _is_num(bfmi) and bfmi < BFMI_LOW)
-            + f"<td>{probs}</td></tr>"
+            + f"<td>{probs}</td><td>{_start(m)}</td></tr>"
         )
     return (
         f'<table id="diagnostics">{head}{"".join(rows)}</table>'

@@ -297,6 +297,18 @@ def test_diagnostics_table(run):
         assert ("NOT CONVERGED" in row) == (not m["converged"])
         for p in m["problems"]:
             assert p in row
+        assert row.endswith("fresh")  # how the chains started: this run fitted from scratch
+
+
+def test_diagnostics_say_how_the_chains_started(run, tmp_path):
+    s = copy.deepcopy(run["summary"])
+    s["models"]["nfw"]["warm_start"] = {
+        "from": "/w/runs/0002", "warmup": 150, "mass_matrix": "earlier posterior"
+    }  # fmt: skip
+    s["models"]["stars-only"]["reused_from"] = "/w/runs/0003"
+    page = Page(_write(_copy_run(run, tmp_path / "warm"), s))
+    assert page.text_of("diag-nfw").endswith("warm start from 0002: 150 warmup, its mass matrix")
+    assert page.text_of("diag-stars-only").endswith("reused from 0003 (inputs unchanged)")
 
 
 def test_caveats_in_plain_words(run):
