@@ -290,12 +290,18 @@ def _model_result(
         warmup, init, inv_mass, adapt = settings.warmup, None, None, True
         if warm is not None:
             try:
-                prev_entry = json.loads((Path(warm) / "summary.json").read_text())["models"][name]
+                prev = json.loads((Path(warm) / "summary.json").read_text())
+                prev_ok = prev["models"][name].get("converged", False)
+                ps = prev["settings"]
+                same = (ps.get("binaries"), ps.get("foreground")) == (
+                    settings.binaries,
+                    bool(likes.foreground_on),
+                )
                 _, prev_samples = load_posterior(warm, name)
                 got = _warm_init(model, latent, prev_samples, settings.chains, settings.seed)
             except (OSError, KeyError, ValueError):
                 got = None
-            if got is not None and prev_entry.get("converged", False):
+            if got is not None and prev_ok and same:
                 init, inv_mass = got
                 adapt = False
                 warmup = min(
@@ -309,13 +315,19 @@ def _model_result(
                     settings,
                 )
             elif got is not None:
-                # an unconverged posterior is no firm guide to the geometry: start there, but
-                # adapt the mass matrix over the full warmup
+                # an unconverged posterior, or one of another likelihood (binaries or foreground
+                # switched), is no firm guide to the geometry: start there, but adapt the mass
+                # matrix over the full warmup
                 init, inv_mass = got
                 start = {"from": str(warm), "warmup": warmup, "mass_matrix": "adapted"}
+                why = (
+                    "the earlier run did not converge"
+                    if not prev_ok
+                    else "the earlier run had other binary/foreground settings"
+                )
                 _say(
-                    f"[{name}] warm start from {warm}; the earlier run did not converge: full "
-                    f"warmup ({warmup}), mass matrix adapted",
+                    f"[{name}] warm start from {warm}; {why}: full warmup ({warmup}), mass "
+                    "matrix adapted",
                     settings,
                 )
         _say(

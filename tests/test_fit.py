@@ -257,25 +257,26 @@ def test_cli_mock_writes_catalogue_and_truth(tmp_path, capsys):
 
 
 def test_warm_start_takes_the_mass_matrix_only_from_a_converged_run(cluster_fit, tmp_path, capsys):
-    # a converged earlier posterior gives the next run its draws as starting points and its
-    # covariance as the (fixed) mass matrix; an unconverged one is no firm guide to the
-    # geometry: the next run starts at its draws but adapts the mass matrix over the full warmup
+    # a converged earlier posterior of the same likelihood gives the next run its draws as
+    # starting points and its covariance as the (fixed) mass matrix; an unconverged one, or one
+    # of another likelihood, is no firm guide to the geometry: the next run starts at its draws
+    # but adapts the mass matrix over the full warmup
     import shutil
 
     _, _, (stars, sat, out) = cluster_fit
-    quick = FitSettings(
-        chains=2, warmup=60, draws=60, seed=3, progress=True, binaries=False, foreground=False
-    )
-    for converged, matrix, message in (
-        (True, "earlier posterior", "(60 warmup iterations, mass matrix of the earlier posterior)"),
-        (False, "adapted", "did not converge: full warmup (60), mass matrix adapted"),
+    assert json.loads((out / "summary.json").read_text())["settings"]["binaries"] is True
+    for converged, binaries, matrix, message in (
+        (True, True, "earlier posterior", "(60 warmup iterations, mass matrix of the earlier"),
+        (True, False, "adapted", "other binary/foreground settings: full warmup (60)"),
+        (False, False, "adapted", "did not converge: full warmup (60), mass matrix adapted"),
     ):
-        prev = tmp_path / f"prev-{converged}"
+        prev = tmp_path / f"prev-{converged}-{binaries}"
         shutil.copytree(out, prev)
         s = json.loads((prev / "summary.json").read_text())
         s["models"]["stars-only"]["converged"] = converged
         (prev / "summary.json").write_text(json.dumps(s))
-        res = fit(stars, sat, tmp_path / f"next-{converged}", ["stars-only"], quick,
+        quick = FitSettings(chains=2, warmup=60, draws=60, seed=3, progress=True, binaries=binaries)
+        res = fit(stars, sat, tmp_path / f"next-{converged}-{binaries}", ["stars-only"], quick,
                   warm={"stars-only": prev})  # fmt: skip
         start = res["models"]["stars-only"]["warm_start"]
         assert start["mass_matrix"] == matrix and start["warmup"] == quick.warmup
