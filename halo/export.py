@@ -71,7 +71,7 @@ from halo.constants import DEG, MSUN2_KPC5_TO_GEV2_CM5, MSUN_KPC2_TO_GEV_CM2
 from halo.cosmology import rho_crit
 from halo.derived import STANDARD_ANGLES, parameter_values, quantiles
 from halo.errors import InputError
-from halo.fileio import atomic_path
+from halo.fileio import atomic_path, read_input_text
 from halo.jfactor import d_factor, dd_domega, dj_domega, j_factor, log10_d, log10_j
 from halo.satellite import parse_satellite
 from halo.spec import load_spec
@@ -127,12 +127,7 @@ def read_run(run_dir):
     if not run_dir.is_dir():
         raise InputError(f"{run_dir}: no such run folder")
     path = run_dir / "summary.json"
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise _run_error(path, "no such file (not a fit output folder?)") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise _run_error(path, f"cannot read ({exc.__class__.__name__})") from None
+    text = read_input_text(path, "no such file (not a fit output folder?)")
     try:
         summary = json.loads(text)
     except json.JSONDecodeError as exc:

@@ -10,7 +10,20 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["atomic_path", "write_text", "write_json"]
+__all__ = ["atomic_path", "write_text", "write_json", "read_input_text"]
+
+
+def read_input_text(path, missing="no such file"):
+    """The UTF-8 text of a user's input file; a one-line InputError naming the file (``missing``
+    says what to write when it does not exist) when it cannot be read."""
+    from halo.errors import InputError
+
+    try:
+        return Path(path).read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError(f"{path}: {missing}") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"{path}: cannot read ({exc.__class__.__name__})") from None
 
 
 @contextlib.contextmanager

@@ -18,7 +18,7 @@ import re
 from pathlib import Path
 
 from halo.errors import InputError
-from halo.fileio import atomic_path
+from halo.fileio import atomic_path, read_input_text
 from halo.sampling import ESS_MIN, RHAT_MAX
 
 __all__ = ["write_html_report"]
@@ -230,42 +230,35 @@ def _load_summary(run_dir):
     path = run_dir / "summary.json"
     if not run_dir.is_dir():
         raise InputError(f"{run_dir}: no such folder (expected a halo fit output folder)")
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(f"{path}: no such file (not a halo fit output folder?)") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{path}: cannot read ({exc.__class__.__name__})") from None
+    text = read_input_text(path, "no such file (not a halo fit output folder?)")
     try:
         summary = json.loads(text)
     except json.JSONDecodeError as exc:
         raise InputError(f"{path}: malformed JSON (line {exc.lineno}: {exc.msg})") from None
     if not isinstance(summary, dict):
         raise InputError(f"{path}: expected a JSON object at the top level")
-    for key, kind in (
-        ("satellite", dict),
-        ("models", dict),
-        ("catalogue", dict),
-        ("settings", dict),
-        ("created", str),
-    ):
-        if not isinstance(summary.get(key), kind):
-            raise InputError(f"{path}: missing or malformed key '{key}'")
-    if not isinstance(summary["satellite"].get("name"), str):
-        raise InputError(f"{path}: missing or malformed key 'satellite.name'")
+    _require(path, summary, "", _SUMMARY_KEYS)
+    _require(path, summary["satellite"], "satellite.", {"name": str})
     for name, m in summary["models"].items():
         if not isinstance(m, dict):
             raise InputError(f"{path}: missing or malformed key 'models.{name}'")
-        for key, kind in (
-            ("converged", bool),
-            ("derived", dict),
-            ("diagnostics", dict),
-            ("evidence", dict),
-            ("loo", dict),
-        ):
-            if not isinstance(m.get(key), kind):
-                raise InputError(f"{path}: missing or malformed key 'models.{name}.{key}'")
+        _require(path, m, f"models.{name}.", _MODEL_KEYS)
     return summary
+
+
+#: keys the report reads, with their JSON types (top level and per model)
+_SUMMARY_KEYS = {"satellite": dict, "models": dict, "catalogue": dict, "settings": dict,
+                 "created": str}  # fmt: skip
+_MODEL_KEYS = {"converged": bool, "derived": dict, "diagnostics": dict, "evidence": dict,
+               "loo": dict}  # fmt: skip
+
+
+def _require(path, obj, prefix, kinds):
+    """InputError naming the first of ``kinds`` (key -> type) missing from ``obj`` or of
+    another type."""
+    for key, kind in kinds.items():
+        if not isinstance(obj.get(key), kind):
+            raise InputError(f"{path}: missing or malformed key '{prefix}{key}'")
 
 
 def _figure_list(run_dir, summary):

@@ -10,6 +10,7 @@ import tomllib
 from pathlib import Path
 
 from halo.errors import InputError
+from halo.fileio import read_input_text
 from halo.light import LIGHT_PROFILES
 
 __all__ = ["Satellite", "read_satellite", "parse_satellite"]
@@ -202,12 +203,7 @@ def parse_satellite(data, source="<memory>"):
 def read_satellite(path):
     """Read and validate a satellite TOML file."""
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(f"{path}: no such file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{path}: cannot read ({exc.__class__.__name__})") from None
+    text = read_input_text(path)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
