@@ -3,7 +3,7 @@
 Run:  .venv/bin/python benchmarks/bench_fit.py [--chains 4 --warmup 1000 --draws 1000]
 
 Mocks: NFW halo (M200 = 1e9 Msun, c200 = 20) with Plummer stars (the embedded demo satellite's
-size and distance), isotropic, velocities drawn with the Gaussian (Jeans) method of halo.mock,
+size and distance), isotropic, velocities drawn with the Gaussian (Jeans) method of halo.mock.catalogue,
 errors 1-2 km/s. The fitted model is the shipped `nfw` spec.
 
 Printed per size (30, 100, 300, 3000 stars):
@@ -32,16 +32,16 @@ import arviz as az
 import numpy as np
 
 import halo  # noqa: F401
-from halo.catalog import stars_from_table
-from halo.cosmology import rho_crit
-from halo.dark import NFW
-from halo.demo import demo_satellite_path
-from halo.derived import derive
-from halo.inference import make_fit_data, make_model
-from halo.mock import make_mock
-from halo.sampling import run_nuts
-from halo.satellite import read_satellite
-from halo.spec import load_spec
+from halo.inference.model import make_fit_data, make_model
+from halo.inference.sampling import run_nuts
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import read_satellite
+from halo.inputs.spec import load_spec
+from halo.mock.catalogue import make_mock
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import NFW
+from halo.pipeline.demo import demo_satellite_path
+from halo.results.derived import derive
 
 
 def one(n, args, sat, spec):

@@ -10,7 +10,7 @@ R_e = 30 pc), constant beta = 0.3, sigma_los at 100 log-spaced radii from 0.01 t
 - quad: the two nested integrals as they stand (radial Jeans integral inside the projection
   integral), scipy.integrate.quad at its default tolerances; timed on --quad-radii radii and scaled
   to 100; its gradient is 2 x 5 + 1 evaluations (central finite differences in 5 parameters)
-- halo: halo.jeans.sigma_los, jitted, after compilation, DEFAULT and FAST orders; value and
+- halo: halo.physics.jeans.sigma_los, jitted, after compilation, DEFAULT and FAST orders; value and
   value + gradient (reverse mode, all 5 parameters)
 
 Targets (issue): value + gradient for 100 radii <= 1 ms; >= 1000 x faster than quad at equal or
@@ -30,12 +30,12 @@ from scipy import integrate
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
 import halo  # noqa: E402,F401
-from halo.anisotropy import Constant  # noqa: E402
-from halo.constants import G  # noqa: E402
-from halo.dark import NFW  # noqa: E402
-from halo.jeans import DEFAULT, FAST, Orders, sigma_los  # noqa: E402
-from halo.light import Plummer  # noqa: E402
-from halo.mass import MassModel, Stars  # noqa: E402
+from halo.core.constants import G  # noqa: E402
+from halo.physics.anisotropy import Constant  # noqa: E402
+from halo.physics.dark import NFW  # noqa: E402
+from halo.physics.jeans import DEFAULT, FAST, Orders, sigma_los  # noqa: E402
+from halo.physics.light import Plummer  # noqa: E402
+from halo.physics.mass import MassModel, Stars  # noqa: E402
 
 from jeans_reference import beta_np, nfw_mass_np, sigma_los_reference  # noqa: E402
 

@@ -1,7 +1,7 @@
 """Benchmark: log10 J at four cone half-angles for many NFW parameter draws.
 
 Run as ``.venv/bin/python benchmarks/bench_jfactor.py [--draws N] [--ref-draws M]``. Times
-:func:`halo.jfactor.log10_j_draws` after compilation (best of a few repeats) and compares with a
+:func:`halo.physics.jfactor.log10_j_draws` after compilation (best of a few repeats) and compares with a
 straightforward scipy reference (nested adaptive quadrature over angle and line of sight, the
 same one the tests use as an independent oracle), measured in the same run on a few draws and
 scaled per draw. Also prints the largest difference between the two.
@@ -16,9 +16,9 @@ import numpy as np
 from scipy import integrate
 
 import halo  # noqa: F401  (float64)
-from halo.constants import MSUN2_KPC5_TO_GEV2_CM5
-from halo.dark import NFW
-from halo.jfactor import log10_j_draws
+from halo.core.constants import MSUN2_KPC5_TO_GEV2_CM5
+from halo.physics.dark import NFW
+from halo.physics.jfactor import log10_j_draws
 
 ANGLES_DEG = (0.1, 0.2, 0.5, 1.0)
 
@@ -104,8 +104,8 @@ def main():
 
     print(f"devices: {jax.devices()}")
     print(f"log10 J at {ANGLES_DEG} deg for {args.draws} NFW draws")
-    print(f"  halo.jfactor (first call, incl. compile): {t_first:.3f} s")
-    print(f"  halo.jfactor (compiled, best of {args.repeats}): {t_jax:.3f} s")
+    print(f"  halo.physics.jfactor (first call, incl. compile): {t_first:.3f} s")
+    print(f"  halo.physics.jfactor (compiled, best of {args.repeats}): {t_jax:.3f} s")
     print(f"  scipy nested quad ({m} draws, scaled to {args.draws}): {t_ref:.1f} s")
     print(f"  speed-up: {t_ref / t_jax:.0f}x")
     print(f"  max |log10 J - scipy| over the reference draws: {np.max(np.abs(out[:m] - ref)):.1e}")

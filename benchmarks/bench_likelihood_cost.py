@@ -25,17 +25,17 @@ os.environ["JAX_PERSISTENT_CACHE_MIN_COMPILE_TIME_SECS"] = "0"
 import numpy as np
 
 import halo  # noqa: F401
-from halo.binaries import load_mixture
-from halo.catalog import stars_from_table
-from halo.cosmology import rho_crit
-from halo.dark import NFW
-from halo.demo import demo_satellite_path
-from halo.inference import Foreground, make_fit_data, make_model
-from halo.likelihood import epoch_terms
-from halo.mock import make_mock
-from halo.sampling import run_nuts
-from halo.satellite import read_satellite
-from halo.spec import load_spec
+from halo.inference.likelihood import epoch_terms
+from halo.inference.model import Foreground, make_fit_data, make_model
+from halo.inference.sampling import run_nuts
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import read_satellite
+from halo.inputs.spec import load_spec
+from halo.mock.catalogue import make_mock
+from halo.physics.binaries import load_mixture
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import NFW
+from halo.pipeline.demo import demo_satellite_path
 
 
 def run(model, kw):

@@ -2,7 +2,7 @@
 
 Run:  .venv/bin/python benchmarks/bench_rerun.py [--chains 4 --warmup 1000 --draws 1000]
 
-Mock: the demo satellite (halo.mock, cored halo, distribution function), 110 stars with 30%
+Mock: the demo satellite (halo.mock.catalogue, cored halo, distribution function), 110 stars with 30%
 binaries. Workspace A gets 100 stars and is fitted (nfw and stars-only, default likelihood:
 binaries on, foreground automatic), then 10 more stars are added and `refit` runs again (warm
 start from the previous posterior, shorter warmup). Workspace B fits all 110 stars from scratch
@@ -17,13 +17,13 @@ from pathlib import Path
 
 import numpy as np
 
-from halo.cosmology import rho_crit
-from halo.dark import CoreNFW
-from halo.demo import demo_satellite_path
-from halo.fit import FitSettings
-from halo.mock import make_mock
-from halo.satellite import read_satellite
-from halo.workspace import add_catalogue, history, init_workspace, latest_run_folder, refit
+from halo.inputs.satellite import read_satellite
+from halo.mock.catalogue import make_mock
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import CoreNFW
+from halo.pipeline.demo import demo_satellite_path
+from halo.pipeline.fit import FitSettings
+from halo.workspace.store import add_catalogue, history, init_workspace, latest_run_folder, refit
 
 
 def main():

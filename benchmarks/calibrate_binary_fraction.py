@@ -1,9 +1,9 @@
 """Coverage of the binary fraction from two epochs a year apart (the epoch terms alone).
 
 Each realisation: N stars, half of them binaries drawn orbit by orbit from the default population
-(halo.binaries.sample_orbits), observed twice 365 days apart with errors 0.3-0.6 km/s, intrinsic
+(halo.physics.binaries.sample_orbits), observed twice 365 days apart with errors 0.3-0.6 km/s, intrinsic
 dispersion 0.2 km/s. The posterior of the binary fraction (uniform prior) is computed on a grid
-from the per-star single/binary likelihoods of halo.likelihood, with the dispersion and systemic
+from the per-star single/binary likelihoods of halo.inference.likelihood, with the dispersion and systemic
 velocity held at their true values (this isolates the multi-epoch binary term). Prints each
 realisation and the bias and 95% coverage.
 
@@ -17,10 +17,10 @@ import jax.numpy as jnp
 import numpy as np
 from astropy.table import Table
 
-from halo.binaries import BinaryPopulation, load_mixture, los_velocity, sample_orbits
-from halo.catalog import stars_from_table
-from halo.likelihood import epoch_terms, member_log_terms
-from halo.satellite import parse_satellite
+from halo.inference.likelihood import epoch_terms, member_log_terms
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import parse_satellite
+from halo.physics.binaries import BinaryPopulation, load_mixture, los_velocity, sample_orbits
 
 jax.config.update("jax_enable_x64", True)
 

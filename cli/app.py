@@ -62,7 +62,7 @@ def models_cmd(
     json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
 ):
     """List the model specs and their parameters."""
-    from halo.spec import available_specs, load_spec
+    from halo.inputs.spec import available_specs, load_spec
 
     specs = [load_spec(n) for n in available_specs()]
     if json_out:
@@ -96,7 +96,7 @@ def models_cmd(
 def _satellite_path(name):
     """'demo' names the embedded demo satellite file; anything else is a path."""
     if name == "demo" and not os.path.exists(name):
-        from halo.demo import demo_satellite_path
+        from halo.pipeline.demo import demo_satellite_path
 
         return demo_satellite_path()
     return name
@@ -120,9 +120,9 @@ def predict_cmd(
     json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
 ):
     """Velocity dispersion, enclosed mass, J and D of one model at given parameters."""
-    from halo.predict import predict
-    from halo.satellite import read_satellite
-    from halo.spec import load_spec
+    from halo.inputs.satellite import read_satellite
+    from halo.inputs.spec import load_spec
+    from halo.pipeline.predict import predict
 
     values = _parse_set(set_)
     radii = _parse_list(radii_pc, "--radii-pc")
@@ -200,10 +200,10 @@ def fit_cmd(
     quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
 ):
     """Fit the models to a catalogue and compare each with stars alone."""
-    from halo.catalog import parse_column_overrides, read_catalogue
-    from halo.fit import DEFAULT_MODELS, FitSettings, fit
-    from halo.report import format_summary
-    from halo.satellite import read_satellite
+    from halo.inputs.catalogue import parse_column_overrides, read_catalogue
+    from halo.inputs.satellite import read_satellite
+    from halo.pipeline.fit import DEFAULT_MODELS, FitSettings, fit
+    from halo.products.text_report import format_summary
 
     for v, o in ((chains, "--chains"), (warmup, "--warmup"), (draws, "--draws")):
         _positive_int(v, o)
@@ -236,7 +236,7 @@ def demo_cmd(
     quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
 ):
     """The whole job on the embedded fictional satellite and its mock catalogue."""
-    from halo.demo import run_demo
+    from halo.pipeline.demo import run_demo
 
     out_dir = _check_out_dir(out, overwrite)
     typer.echo(run_demo(out_dir, progress=not quiet))
@@ -267,7 +267,7 @@ def mock_cmd(
     ),
 ):
     """A mock catalogue with a known truth (written beside it as JSON)."""
-    from halo.demo import write_mock
+    from halo.pipeline.demo import write_mock
 
     _positive_int(n_stars, "--n-stars")
     err = _parse_list(errors, "--errors")
@@ -312,7 +312,7 @@ def init_cmd(
     ),
 ):
     """Create a workspace for one satellite: catalogue versions, runs and their history."""
-    from halo.workspace import init_workspace
+    from halo.workspace.store import init_workspace
 
     ws = init_workspace(workspace, _satellite_path(satellite), list(model) if model else None)
     typer.echo(f"workspace {ws.root} created; add stars with `halo add {ws.root} CATALOGUE`")
@@ -330,8 +330,8 @@ def add_cmd(
     ),
 ):
     """Merge a catalogue's stars and epochs into a new catalogue version."""
-    from halo.catalog import parse_column_overrides
-    from halo.workspace import add_catalogue
+    from halo.inputs.catalogue import parse_column_overrides
+    from halo.workspace.store import add_catalogue
 
     r = add_catalogue(workspace, catalogue, parse_column_overrides(column), replace=replace)
     if not r["changed"]:
@@ -367,8 +367,8 @@ def refit_cmd(
     Options left out keep the values of the workspace's last run (the defaults of `halo fit`
     before the first run).
     """
-    from halo.report import format_summary
-    from halo.workspace import last_settings, refit
+    from halo.products.text_report import format_summary
+    from halo.workspace.store import last_settings, refit
 
     for v, o in ((chains, "--chains"), (warmup, "--warmup"), (draws, "--draws")):
         if v is not None:
@@ -402,7 +402,7 @@ def status_cmd(
     json_out: bool = typer.Option(False, "--json", help="one JSON object on stdout"),
 ):
     """What is stale in a workspace and what the next refit would do."""
-    from halo.workspace import status
+    from halo.workspace.store import status
 
     st = status(workspace)
     if json_out:
@@ -432,7 +432,7 @@ def history_cmd(
     json_out: bool = typer.Option(False, "--json", help="one JSON object on stdout"),
 ):
     """How the mass, J-factor, Bayes factors and members moved from run to run."""
-    from halo.workspace import history, history_figure
+    from halo.workspace.store import history, history_figure
 
     rows = history(workspace)
     if json_out:
@@ -473,8 +473,8 @@ def export_cmd(
     """J- and D-factor tables, posterior draws, FITS templates and the summary of a run."""
     from pathlib import Path
 
-    from halo.export import export_run
-    from halo.workspace import DB_NAME, latest_run_folder
+    from halo.products.export import export_run
+    from halo.workspace.store import DB_NAME, latest_run_folder
 
     src = Path(source)
     run = latest_run_folder(src) if (src / DB_NAME).is_file() else src
@@ -508,7 +508,7 @@ def _is_usage_error(exc):
 def main(argv=None):
     """Console entry point: maps bad input to exit 2 with one line, internal errors to exit 1."""
     _configure_environment()
-    from halo.errors import InputError
+    from halo.core.errors import InputError
 
     try:
         app(args=argv, standalone_mode=False)

@@ -9,7 +9,7 @@ import pytest
 from scipy.optimize import brentq
 from scipy.stats import norm
 
-from halo import binaries as b
+from halo.physics import binaries as b
 
 
 @pytest.fixture(scope="module")

@@ -2,7 +2,7 @@
 binaries must not look like a dark-matter-dominated system once binaries are modelled.
 
 Mock: a stars-only Plummer cluster (no dark matter) with 50% binaries at one epoch, the binary
-velocities drawn orbit by orbit (halo.binaries.sample_orbits / los_velocity: Raghavan et al. 2010
+velocities drawn orbit by orbit (halo.physics.binaries.sample_orbits / los_velocity: Raghavan et al. 2010
 periods, Kepler orbits), not from the mixture the likelihood uses. McConnachie & Cote (2010, ApJL
 722, L209) show such binaries inflate a sub-km/s dispersion to a few km/s [memory for the
 numbers]. Both sides are kept: without the binary term the same data show a spurious signal.
@@ -12,11 +12,11 @@ import numpy as np
 import pytest
 from astropy.table import Table
 
-from halo.binaries import BinaryPopulation, los_velocity, sample_orbits
-from halo.catalog import stars_from_table
-from halo.fit import FitSettings, fit
-from halo.mock import make_mock
-from halo.satellite import parse_satellite
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import parse_satellite
+from halo.mock.catalogue import make_mock
+from halo.physics.binaries import BinaryPopulation, los_velocity, sample_orbits
+from halo.pipeline.fit import FitSettings, fit
 
 CLUSTER = {
     "name": "binary cluster",

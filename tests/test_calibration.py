@@ -19,17 +19,17 @@ import jax.numpy as jnp
 import numpy as np
 import pytest
 
-from halo.catalog import stars_from_table
-from halo.concentration import dutton_maccio14
-from halo.cosmology import rho_crit
-from halo.dark import CoreNFW
-from halo.derived import derive, quantiles
-from halo.inference import make_fit_data, make_model
-from halo.jfactor import log10_j
-from halo.mock import make_mock
-from halo.sampling import run_nuts
-from halo.satellite import parse_satellite
-from halo.spec import load_spec
+from halo.inference.model import make_fit_data, make_model
+from halo.inference.sampling import run_nuts
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import parse_satellite
+from halo.inputs.spec import load_spec
+from halo.mock.catalogue import make_mock
+from halo.physics.concentration import dutton_maccio14
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import CoreNFW
+from halo.physics.jfactor import log10_j
+from halo.results.derived import derive, quantiles
 
 SAT = {
     "name": "calibration",

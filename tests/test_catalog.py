@@ -14,15 +14,15 @@ from astropy.table import MaskedColumn, Table
 from astropy.time import Time
 from scipy import stats
 
-from halo.catalog import (
+from halo.core.errors import InputError
+from halo.inputs.catalogue import (
     angle_to_kpc,
     parse_column_overrides,
     projected_offsets,
     read_catalogue,
     stars_from_table,
 )
-from halo.errors import InputError
-from halo.satellite import parse_satellite
+from halo.inputs.satellite import parse_satellite
 
 SAT = parse_satellite(
     {

@@ -10,15 +10,15 @@ import jax.numpy as jnp
 import numpy as np
 import pytest
 
-from halo.anisotropy import Constant
 from halo.cli.app import main
-from halo.cosmology import rho_crit
-from halo.dark import NFW
-from halo.demo import demo_satellite_path
-from halo.jeans import sigma_los
-from halo.jfactor import log10_j
-from halo.mass import MassModel, Stars
-from halo.satellite import read_satellite
+from halo.inputs.satellite import read_satellite
+from halo.physics.anisotropy import Constant
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import NFW
+from halo.physics.jeans import sigma_los
+from halo.physics.jfactor import log10_j
+from halo.physics.mass import MassModel, Stars
+from halo.pipeline.demo import demo_satellite_path
 
 
 def run(capsys, *args):

@@ -7,8 +7,8 @@ import jax.numpy as jnp
 import numpy as np
 import pytest
 
-from halo import concentration as cm
-from halo.cosmology import hubble_h, r200_from_m200, rho_crit
+from halo.physics import concentration as cm
+from halo.physics.cosmology import hubble_h, r200_from_m200, rho_crit
 
 H = hubble_h()  # Planck18, 0.6766
 FIELD = ["dutton14", "sanchez-conde14"]

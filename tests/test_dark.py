@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from halo import dark
-from halo.cosmology import rho_crit
-from halo.dark import NFW, Burkert, CoreNFW, Einasto, Zhao
+from halo.physics import dark
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import NFW, Burkert, CoreNFW, Einasto, Zhao
 
 
 @pytest.fixture(autouse=True)

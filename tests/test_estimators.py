@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 from scipy import integrate, optimize
 
-from halo import estimators as est
-from halo.constants import G
+from halo.core.constants import G
+from halo.physics import estimators as est
 
 PC = 1.0e-3  # kpc
 A = 0.030  # Plummer scale radius = projected half-light radius R_e [kpc]

@@ -15,8 +15,8 @@ import numpyro.distributions as dist
 import pytest
 from scipy import stats
 
-from halo.evidence import log_evidence
-from halo.sampling import run_nuts
+from halo.inference.evidence import log_evidence
+from halo.inference.sampling import run_nuts
 
 Y = np.random.default_rng(3).normal(1.3, 2.0, size=25)
 S = 2.0
@@ -69,13 +69,13 @@ def test_bridge_agrees_with_nested_sampling_on_a_jeans_model():
     # two independent estimators of the same evidence: bridge sampling from NUTS draws (Meng &
     # Wong 1996) and nested sampling (dynesty; Skilling 2006, Bayesian Analysis 1, 833)
     pytest.importorskip("dynesty")
-    from halo.catalog import stars_from_table
-    from halo.evidence import nested_sampling_evidence
-    from halo.fit import _latent_sites
-    from halo.inference import make_fit_data, make_model
-    from halo.mock import make_mock
-    from halo.satellite import parse_satellite
-    from halo.spec import load_spec
+    from halo.inference.evidence import nested_sampling_evidence
+    from halo.inference.model import make_fit_data, make_model
+    from halo.inputs.catalogue import stars_from_table
+    from halo.inputs.satellite import parse_satellite
+    from halo.inputs.spec import load_spec
+    from halo.mock.catalogue import make_mock
+    from halo.pipeline.fit import _latent_sites
 
     sat = parse_satellite(
         {

@@ -1,4 +1,4 @@
-"""halo.export: J/D tables, posterior draws and dJ/dOmega templates from a fit output folder.
+"""halo.products.export: J/D tables, posterior draws and dJ/dOmega templates from a fit output folder.
 
 The run folder is built here by hand (summary.json and an arviz posterior.nc with a few NFW draws),
 without running the sampler.
@@ -20,18 +20,18 @@ from astropy.table import Table
 from astropy.wcs import WCS
 from scipy import integrate
 
-from halo.constants import DEG, MSUN2_KPC5_TO_GEV2_CM5, MSUN_KPC2_TO_GEV_CM2
-from halo.cosmology import rho_crit
-from halo.dark import NFW
-from halo.errors import InputError
-from halo.export import (
+from halo.core.constants import DEG, MSUN2_KPC5_TO_GEV2_CM5, MSUN_KPC2_TO_GEV_CM2
+from halo.core.errors import InputError
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import NFW
+from halo.physics.jfactor import d_factor, dj_domega, j_factor, log10_j
+from halo.products.export import (
     export_run,
     pixel_average_radial,
     read_posterior,
     read_run,
     tan_pixel_solid_angles,
 )
-from halo.jfactor import d_factor, dj_domega, j_factor, log10_j
 
 SAT = {
     "name": "Test dwarf",
@@ -170,7 +170,7 @@ def test_template_cone_sums_match_exact_cone(exported, kind, factor, conv):
     mean = np.asarray(per_draw).mean(axis=0) * conv
     for i, theta in enumerate((0.1, 0.2, 0.5)):
         # the issue's validation: pixels within the cone times their solid angle reproduce the
-        # mean exact-cone value (halo.jfactor, checked against scipy in tests/test_jfactor.py)
+        # mean exact-cone value (halo.physics.jfactor, checked against scipy in tests/test_jfactor.py)
         # within 1%; the residual is the pixelisation of the cone's edge
         inside = sep <= theta
         assert np.sum(data[inside] * omega[inside]) == pytest.approx(mean[i], rel=1e-2)
@@ -185,7 +185,7 @@ def test_template_cone_sums_match_exact_cone(exported, kind, factor, conv):
 
 def test_template_central_pixels_against_scipy(exported):
     """Cusp handling: the central pixel and its neighbour against scipy's adaptive quadrature of
-    the draw-averaged dJ/dOmega (halo.jfactor.dj_domega, evaluated directly, no interpolation)."""
+    the draw-averaged dJ/dOmega (halo.physics.jfactor.dj_domega, evaluated directly, no interpolation)."""
     data, omega, hdr, chains, draws = _template(exported["out"], "dj")
     post = exported["post"]
     mean_f = jax.jit(

@@ -1,6 +1,6 @@
 """The main job on seeded mocks: recovery, the dark-vs-stars comparison, outputs and the CLI.
 
-Mocks are drawn from equilibrium distribution functions (Eddington inversion, halo.mock), an
+Mocks are drawn from equilibrium distribution functions (Eddington inversion, halo.mock.catalogue), an
 independent route from the Jeans equations the fit uses, so the tests are not circular.
 Sampler settings are reduced (2 chains x 400 + 400) to keep the suite fast; the full-size
 calibration lives in tests/test_calibration.py (opt-in, --run-slow).
@@ -13,14 +13,14 @@ import jax.numpy as jnp
 import pytest
 from astropy.table import Table
 
-from halo.catalog import stars_from_table
 from halo.cli.app import main
-from halo.cosmology import rho_crit
-from halo.dark import CoreNFW
-from halo.fit import FitSettings, fit, verdict
-from halo.jfactor import log10_j
-from halo.mock import make_mock
-from halo.satellite import parse_satellite
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import parse_satellite
+from halo.mock.catalogue import make_mock
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import CoreNFW
+from halo.physics.jfactor import log10_j
+from halo.pipeline.fit import FitSettings, fit, verdict
 
 DWARF = {
     "name": "Test dwarf",

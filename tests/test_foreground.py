@@ -1,6 +1,6 @@
 """A dwarf observed with 30% Milky Way foreground in the field.
 
-Members: an equilibrium distribution-function mock of a cored dwarf (halo.mock). Foreground:
+Members: an equilibrium distribution-function mock of a cored dwarf (halo.mock.catalogue). Foreground:
 uniform over the field (a disc of 5 half-light radii), velocities from a two-Gaussian mixture
 (not the single Gaussian the likelihood assumes), the same errors. The fit must recover the mass
 inside the half-light radius within its 95% interval and rank members above non-members; the ROC
@@ -15,12 +15,12 @@ from astropy.table import Table, vstack
 from scipy.stats import mannwhitneyu
 from test_fit import DWARF
 
-from halo.catalog import stars_from_table
-from halo.cosmology import rho_crit
-from halo.dark import CoreNFW
-from halo.fit import FitSettings, fit
-from halo.mock import make_mock, sky_coordinates
-from halo.satellite import parse_satellite
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import parse_satellite
+from halo.mock.catalogue import make_mock, sky_coordinates
+from halo.physics.cosmology import rho_crit
+from halo.physics.dark import CoreNFW
+from halo.pipeline.fit import FitSettings, fit
 
 V_SYS = -40.0
 

@@ -21,12 +21,12 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from halo.catalog import read_catalogue
-from halo.errors import InputError
-from halo.fit import FitSettings, fit
-from halo.html_report import write_html_report
-from halo.mock import make_mock
-from halo.satellite import read_satellite
+from halo.core.errors import InputError
+from halo.inputs.catalogue import read_catalogue
+from halo.inputs.satellite import read_satellite
+from halo.mock.catalogue import make_mock
+from halo.pipeline.fit import FitSettings, fit
+from halo.products.html_report import write_html_report
 
 NAME = "Mock <b>& I"
 SATELLITE_TOML = """\

@@ -17,13 +17,13 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from halo._pytree import pytree
-from halo.anisotropy import BaesVanHese, Constant, OsipkovMerritt
-from halo.constants import G
-from halo.dark import NFW
-from halo.jeans import DEFAULT, FAST, Orders, global_dispersion, sigma_los, sigma_r
-from halo.light import Plummer
-from halo.mass import MassModel, Stars
+from halo.core.constants import G
+from halo.core.pytree import pytree
+from halo.physics.anisotropy import BaesVanHese, Constant, OsipkovMerritt
+from halo.physics.dark import NFW
+from halo.physics.jeans import DEFAULT, FAST, Orders, global_dispersion, sigma_los, sigma_r
+from halo.physics.light import Plummer
+from halo.physics.mass import MassModel, Stars
 
 from jeans_reference import beta_np, burkert_mass_np, kernel, nfw_mass_np, sigma_los_reference
 
@@ -161,7 +161,7 @@ R_TEST = np.array([0.01, 0.1, 1.0, 3.0, 10.0]) * R_E
 def _jax_halo(name):
     if name == "nfw":
         return NFW(rho_s=3e7, r_s=0.6)
-    from halo.dark import Burkert
+    from halo.physics.dark import Burkert
 
     return Burkert(rho_s=2e8, r_s=0.3)
 

@@ -1,4 +1,4 @@
-"""J- and D-factors (halo.jfactor) against closed forms and independent quadratures."""
+"""J- and D-factors (halo.physics.jfactor) against closed forms and independent quadratures."""
 
 import math
 
@@ -9,11 +9,11 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-import halo.dark
-from halo._pytree import pytree
-from halo.constants import MSUN2_KPC5_TO_GEV2_CM5, MSUN_KPC2_TO_GEV_CM2
-from halo.dark import NFW
-from halo.jfactor import (
+import halo.physics.dark
+from halo.core.constants import MSUN2_KPC5_TO_GEV2_CM5, MSUN_KPC2_TO_GEV_CM2
+from halo.core.pytree import pytree
+from halo.physics.dark import NFW
+from halo.physics.jfactor import (
     d_factor,
     dd_domega,
     dj_domega,
@@ -30,7 +30,7 @@ from halo.jfactor import (
 @pytree
 class _Cored:
     """Cored test profile rho = rho_s / ((1 + x)(1 + x^2)) (the Burkert 1995 form), defined here
-    so that the tests do not depend on another module when halo.dark has no Burkert."""
+    so that the tests do not depend on another module when halo.physics.dark has no Burkert."""
 
     rho_s: float
     r_s: float
@@ -60,7 +60,7 @@ class _Cusp:
         return jnp.inf
 
 
-_CORED = getattr(halo.dark, "Burkert", _Cored)
+_CORED = getattr(halo.physics.dark, "Burkert", _Cored)
 
 
 def _rho_nfw(rho_s, r_s, r_t=math.inf):

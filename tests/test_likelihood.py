@@ -1,4 +1,4 @@
-"""The per-star likelihood pieces (halo.likelihood) against closed forms and brute force."""
+"""The per-star likelihood pieces (halo.inference.likelihood) against closed forms and brute force."""
 
 import jax
 import jax.numpy as jnp
@@ -7,13 +7,8 @@ import pytest
 from astropy.table import Table
 from scipy import integrate, stats
 
-from halo.binaries import BinaryPopulation, load_mixture, los_velocity, sample_orbits
-from halo.catalog import stars_from_table
-from halo.errors import InputError
-from halo.fit import foreground_decision
-from halo.inference import Foreground, make_fit_data, make_model
-from halo.light import Plummer
-from halo.likelihood import (
+from halo.core.errors import InputError
+from halo.inference.likelihood import (
     PerStarLikelihood,
     dispersion_resolution,
     epoch_terms,
@@ -22,8 +17,13 @@ from halo.likelihood import (
     member_log_terms,
     spatial_log_prior,
 )
-from halo.satellite import parse_satellite
-from halo.spec import load_spec, parse_spec
+from halo.inference.model import Foreground, make_fit_data, make_model
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import parse_satellite
+from halo.inputs.spec import load_spec, parse_spec
+from halo.physics.binaries import BinaryPopulation, load_mixture, los_velocity, sample_orbits
+from halo.physics.light import Plummer
+from halo.pipeline.fit import foreground_decision
 
 jax.config.update("jax_enable_x64", True)
 

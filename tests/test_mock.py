@@ -24,21 +24,21 @@ from astropy.coordinates import SkyCoord
 from astropy.table import Table
 from scipy import integrate, stats
 
-from halo._pytree import pytree
-from halo.anisotropy import BaesVanHese, Constant, OsipkovMerritt
-from halo.constants import G
-from halo.dark import NFW, Burkert
-from halo.errors import InputError
-from halo.jeans import sigma_los, sigma_r
-from halo.light import Plummer
-from halo.mass import MassModel, Stars
-from halo.mock import (
+from halo.core.constants import G
+from halo.core.errors import InputError
+from halo.core.pytree import pytree
+from halo.mock.catalogue import (
     distribution_function,
     line_of_sight_velocity,
     make_mock,
     sample_positions,
     sample_velocities_df,
 )
+from halo.physics.anisotropy import BaesVanHese, Constant, OsipkovMerritt
+from halo.physics.dark import NFW, Burkert
+from halo.physics.jeans import sigma_los, sigma_r
+from halo.physics.light import Plummer
+from halo.physics.mass import MassModel, Stars
 
 A = 0.03  # Plummer scale radius [kpc]
 M_STARS = 2e3  # [Msun]

@@ -1,7 +1,7 @@
 """Two epochs a year apart: the joint multi-epoch likelihood picks out the binaries.
 
 Mock: the stars-only cluster of test_binary_likelihood (no dark matter, dispersion ~0.2 km/s),
-50% binaries, each binary's orbit drawn orbit by orbit (halo.binaries.sample_orbits: Raghavan et
+50% binaries, each binary's orbit drawn orbit by orbit (halo.physics.binaries.sample_orbits: Raghavan et
 al. 2010, ApJS 190, 1 periods; Kepler orbits) and evaluated at both epochs, errors 0.3-0.6 km/s.
 The likelihood never sees these orbits: it uses an independent Monte Carlo (other seed) and a
 mixture compression. Binaries whose velocity changed by far more than the errors must be
@@ -13,11 +13,11 @@ import pytest
 from astropy.table import Table
 from test_binary_likelihood import CLUSTER
 
-from halo.binaries import BinaryPopulation, los_velocity, sample_orbits
-from halo.catalog import stars_from_table
-from halo.fit import FitSettings, fit
-from halo.mock import make_mock
-from halo.satellite import parse_satellite
+from halo.inputs.catalogue import stars_from_table
+from halo.inputs.satellite import parse_satellite
+from halo.mock.catalogue import make_mock
+from halo.physics.binaries import BinaryPopulation, los_velocity, sample_orbits
+from halo.pipeline.fit import FitSettings, fit
 
 N_STARS = 80
 EPOCHS = (57000.0, 57365.0)

@@ -1,7 +1,7 @@
 """One suite that every dark profile, light profile and mass component must pass.
 
-Parametrised over ``halo.dark.DARK_PROFILES``, ``halo.light.LIGHT_PROFILES`` and the mass
-components of ``halo.mass`` (``Stars``, ``MassModel``) built from them. Every registered profile
+Parametrised over ``halo.physics.dark.DARK_PROFILES``, ``halo.physics.light.LIGHT_PROFILES`` and the mass
+components of ``halo.physics.mass`` (``Stars``, ``MassModel``) built from them. Every registered profile
 needs an entry in the example tables below: ``test_every_registered_profile_has_examples`` fails
 otherwise, so a new profile cannot be added without being tested here.
 
@@ -24,9 +24,9 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from halo.dark import DARK_PROFILES
-from halo.light import LIGHT_PROFILES
-from halo.mass import MassModel, Stars
+from halo.physics.dark import DARK_PROFILES
+from halo.physics.light import LIGHT_PROFILES
+from halo.physics.mass import MassModel, Stars
 
 # ------------------------------------------------------------------ example tables (kpc, Msun)
 

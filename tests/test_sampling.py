@@ -9,8 +9,8 @@ import numpy as np
 import numpyro
 import numpyro.distributions as dist
 
-from halo.fit import _warm_init
-from halo.sampling import run_nuts
+from halo.inference.sampling import run_nuts
+from halo.pipeline.fit import _warm_init
 
 COV = np.array([[100.0, 50.0], [50.0, 25.01]])
 

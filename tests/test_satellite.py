@@ -4,9 +4,9 @@ import math
 
 import pytest
 
-from halo.demo import demo_satellite_path
-from halo.errors import InputError
-from halo.satellite import parse_satellite, read_satellite
+from halo.core.errors import InputError
+from halo.inputs.satellite import parse_satellite, read_satellite
+from halo.pipeline.demo import demo_satellite_path
 
 GOOD = {
     "name": "Test",

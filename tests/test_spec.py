@@ -2,8 +2,8 @@
 
 import pytest
 
-from halo.errors import InputError
-from halo.spec import available_specs, load_spec, parse_spec
+from halo.core.errors import InputError
+from halo.inputs.spec import available_specs, load_spec, parse_spec
 
 
 def test_shipped_specs_load():

@@ -1,6 +1,6 @@
 """Data that cannot resolve the dispersion: the run says so and reports upper limits.
 
-Mock: a stars-only cluster (dispersion ~0.3 km/s, halo.mock distribution function) measured with
+Mock: a stars-only cluster (dispersion ~0.3 km/s, halo.mock.catalogue distribution function) measured with
 2-3 km/s errors, 40 stars: the dispersion cannot be told from zero. Fitted through the command
 line with both likelihood parts switched off, which must be recorded.
 """
@@ -10,8 +10,8 @@ import json
 import pytest
 
 from halo.cli.app import main
-from halo.mock import make_mock
-from halo.satellite import parse_satellite
+from halo.inputs.satellite import parse_satellite
+from halo.mock.catalogue import make_mock
 
 CLUSTER = {
     "name": "faint cluster",

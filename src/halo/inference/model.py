@@ -1,0 +1,315 @@
+"""The numpyro model: priors from a spec and the satellite file, and the per-star likelihood.
+
+Parameters (sample sites)
+-------------------------
+From the spec, by prior kind:
+
+- ``log-uniform`` NAME in [low, high]: site ``log10_NAME`` uniform in log10.
+- ``uniform`` / ``normal``: site ``NAME``.
+- ``symmetrised-uniform``: site ``NAME_sym`` uniform in beta~ = beta / (2 - beta) (so that radial
+  and tangential anisotropy get equal prior weight, common practice); beta = 2 beta~ / (1 + beta~).
+- ``concentration``: site ``log10_c200`` ~ Normal(log10 c_med(M200), scatter) from the named
+  mass-concentration relation; with a galactocentric distance in the satellite file the spec's
+  ``subhalo_relation`` is used instead.
+- ``fixed``: no site.
+
+Always present (nuisances, so that their uncertainties reach every result):
+
+- ``v_sys`` [km/s]: uniform within +-100 km/s of the catalogue median (the same in every model,
+  so it cancels in Bayes factors);
+- ``distance`` [kpc]: Normal(distance_kpc, distance_err_kpc), truncated at 1/10 of the value;
+- ``r_half_pc`` [pc]: the projected major-axis half-light radius at the file's distance,
+  Normal(r_half_pc, r_half_err_pc) truncated positive. The angular size is what is measured, so
+  the physical circularised radius is r_half_pc sqrt(1 - e) x distance / distance_kpc;
+- the stellar mass [Msun]: ``m_star`` ~ Normal(stellar_mass_msun, err) truncated positive, or,
+  from a magnitude, ``ml_v`` uniform in ``stellar_ml_v`` times L_V with ``abs_mag_v`` ~ Normal.
+
+Likelihood
+----------
+Plain: v_i ~ Normal(v_sys, sigma_los(R_i)^2 + err_i^2) with R_i = distance tan(theta_i) (theta_i the
+circularised angular radius). With binaries and/or foreground the per-star likelihood is the
+mixture of :mod:`halo.inference.likelihood` (epochs used jointly, binary fraction ``f_binary``, foreground
+``v_fg``/``log10_sigma_fg`` and member fraction ``f_member``). sigma_los is solved once per
+likelihood call on ``n_radii`` log-spaced angles spanning the stars and interpolated linearly in
+(ln theta, ln sigma_los); the interpolation weights are fixed data, so the cost grows with the
+number of stars only through that interpolation and the sum.
+"""
+
+import dataclasses
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+import numpyro
+import numpyro.distributions as dist
+
+from halo.core.constants import DEG
+from halo.inference.likelihood import (
+    PerStarLikelihood,
+    foreground_log_density,
+    member_log_terms,
+    spatial_log_prior,
+)
+from halo.inputs.build import build_anisotropy, build_mass_model
+from halo.physics.anisotropy import symmetrised_to_beta
+from halo.physics.concentration import lognormal_prior
+from halo.physics.cosmology import rho_crit
+from halo.physics.jeans import FAST, sigma_los
+
+__all__ = ["FitData", "Foreground", "make_fit_data", "make_model", "V_SYS_HALF_WIDTH"]
+
+V_SYS_HALF_WIDTH = 100.0  # km/s
+
+
+@jax.tree_util.register_dataclass
+@dataclasses.dataclass(frozen=True)
+class FitData:
+    """Per-star arrays for the likelihood (plain JAX arrays, km/s and radians).
+
+    ``v``/``v_err``: each star's inverse-variance weighted mean velocity over its epochs and its
+    uncertainty (1/sqrt W). ``log_c0``, ``log_c1``, ``log_w``, ``bin_loc``, ``bin_scale``: the
+    multi-epoch constants of
+    :mod:`halo.inference.likelihood` (zeros and None for plain single-epoch data). ``log_prior_member`` /
+    ``log_prior_non``: ln p_i and ln(1 - p_i) from a ``member_prob`` column, or None (spatial
+    prior). ``theta_max``: the survey radius (outermost star) [rad].
+    """
+
+    v: jnp.ndarray
+    v_err: jnp.ndarray
+    theta: jnp.ndarray  # circularised angular radius [rad]
+    grid_theta: jnp.ndarray  # angles where sigma_los is solved [rad]
+    idx: jnp.ndarray  # interpolation interval per star
+    w: jnp.ndarray  # interpolation weight per star (in ln theta)
+    log_c0: jnp.ndarray | None = None
+    log_c1: jnp.ndarray | None = None
+    log_w: jnp.ndarray | None = None
+    bin_loc: jnp.ndarray | None = None
+    bin_scale: jnp.ndarray | None = None
+    log_prior_member: jnp.ndarray | None = None
+    log_prior_non: jnp.ndarray | None = None
+    theta_max: jnp.ndarray | None = None
+
+    @property
+    def n_stars(self):
+        return int(self.v.shape[0])
+
+
+def make_fit_data(
+    v, v_err, radius_deg, n_radii=32, epochs=None, member_prob=None, theta_max_deg=None
+):
+    """Arrays for the likelihood from per-star velocities, errors and radii [km/s, deg].
+
+    ``epochs``: optional :class:`halo.inference.likelihood.EpochTerms`; ``member_prob``: optional per-star
+    prior membership probabilities (clipped to [1e-9, 1]); ``theta_max_deg``: survey radius
+    (default 1.001 x the outermost star).
+    """
+    v = np.asarray(v, dtype=float)
+    v_err = np.asarray(v_err, dtype=float)
+    theta = np.maximum(np.asarray(radius_deg, dtype=float) * DEG, 1e-9)
+    lo, hi = np.log(theta.min()) - 0.01, np.log(theta.max()) + 0.01
+    x = np.linspace(lo, hi, n_radii)
+    q = (np.log(theta) - lo) / (x[1] - x[0])
+    idx = np.clip(np.floor(q).astype(int), 0, n_radii - 2)
+    w = q - idx
+    n = len(v)
+    extra = {
+        "log_c0": jnp.zeros(n),
+        "log_c1": jnp.zeros(n),
+        "theta_max": jnp.asarray(
+            1.001 * theta.max() if theta_max_deg is None else theta_max_deg * DEG
+        ),
+    }
+    if epochs is not None:
+        extra["log_c0"] = jnp.asarray(epochs.log_c0)
+        extra["log_c1"] = jnp.asarray(epochs.log_c1)
+        extra["log_w"] = jnp.asarray(epochs.log_w)
+        extra["bin_loc"] = jnp.asarray(epochs.loc)
+        extra["bin_scale"] = jnp.asarray(epochs.scale)
+    if member_prob is not None:
+        p = np.clip(np.asarray(member_prob, dtype=float), 1e-9, 1.0)
+        extra["log_prior_member"] = jnp.asarray(np.log(p))
+        with np.errstate(divide="ignore"):
+            extra["log_prior_non"] = jnp.asarray(np.log1p(-p))
+    return FitData(
+        v=jnp.asarray(v),
+        v_err=jnp.asarray(v_err),
+        theta=jnp.asarray(theta),
+        grid_theta=jnp.asarray(np.exp(x)),
+        idx=jnp.asarray(idx),
+        w=jnp.asarray(w),
+        **extra,
+    )
+
+
+@dataclasses.dataclass(frozen=True)
+class Foreground:
+    """The non-member velocity distribution.
+
+    ``components``: None for one Gaussian with free mean (``v_fg``, uniform within
+    +-FG_MEAN_HALF_WIDTH of the catalogue median) and width (``log10_sigma_fg``, uniform in
+    log10 between FG_SIGMA_RANGE), or a tuple of (mean, sigma, weight) [km/s] given by the user.
+    """
+
+    components: tuple | None = None
+
+
+FG_MEAN_HALF_WIDTH = 300.0  # km/s
+FG_SIGMA_RANGE = (20.0, 300.0)  # km/s: broader than any satellite's dispersion (common practice)
+
+
+def _truncated_normal(name, mean, sd, low):
+    if sd <= 0:
+        return numpyro.deterministic(name, jnp.asarray(mean, dtype=jnp.float64))
+    return numpyro.sample(name, dist.TruncatedNormal(mean, sd, low=low))
+
+
+def sample_nuisances(satellite, v_center):
+    """Systemic velocity, distance, half-light radius and stellar mass (sample sites)."""
+    v_sys = numpyro.sample(
+        "v_sys", dist.Uniform(v_center - V_SYS_HALF_WIDTH, v_center + V_SYS_HALF_WIDTH)
+    )
+    d0 = satellite.distance_kpc
+    distance = _truncated_normal("distance", d0, satellite.distance_err_kpc, 0.1 * d0)
+    r_half_pc = _truncated_normal("r_half_pc", satellite.r_half_pc, satellite.r_half_err_pc, 0.0)
+    if satellite.stellar_mass_msun is not None:
+        m_star = _truncated_normal(
+            "m_star", satellite.stellar_mass_msun, satellite.stellar_mass_err_msun, 0.0
+        )
+    else:
+        lo, hi = satellite.stellar_ml_v
+        ml = numpyro.sample("ml_v", dist.Uniform(lo, hi)) if hi > lo else lo
+        mag0, dmag = satellite.absolute_magnitude_v, satellite.absolute_magnitude_v_err
+        mag = numpyro.sample("abs_mag_v", dist.Normal(mag0, dmag)) if dmag > 0 else mag0
+        m_star = numpyro.deterministic("m_star", ml * 10.0 ** (-0.4 * (mag - 4.83)))
+    r_e_kpc = r_half_pc * 1e-3 * jnp.sqrt(1.0 - satellite.ellipticity) * distance / d0
+    numpyro.deterministic("r_e_kpc", r_e_kpc)
+    return v_sys, distance, r_e_kpc, m_star
+
+
+def sample_spec_parameters(spec, satellite):
+    """Values of the spec's parameters (dict name -> traced value), sampling their priors."""
+    values = {}
+    order = sorted(spec.parameters, key=lambda k: spec.parameters[k]["prior"] == "concentration")
+    for name in order:
+        p = spec.parameters[name]
+        kind = p["prior"]
+        if kind == "log-uniform":
+            lo, hi = np.log10(p["low"]), np.log10(p["high"])
+            x = numpyro.sample(f"log10_{name}", dist.Uniform(lo, hi))
+            values[name] = numpyro.deterministic(name, 10.0**x)
+        elif kind == "uniform":
+            values[name] = numpyro.sample(name, dist.Uniform(p["low"], p["high"]))
+        elif kind == "normal":
+            values[name] = numpyro.sample(name, dist.Normal(p["mean"], p["sigma"]))
+        elif kind == "symmetrised-uniform":
+            s = numpyro.sample(f"{name}_sym", dist.Uniform(p["low"], p["high"]))
+            values[name] = numpyro.deterministic(name, symmetrised_to_beta(s))
+        elif kind == "fixed":
+            values[name] = jnp.asarray(p["value"], dtype=jnp.float64)
+        elif kind == "concentration":
+            rel, kw = p["relation"], {}
+            if satellite.galactocentric_distance_kpc is not None and "subhalo_relation" in p:
+                rel = p["subhalo_relation"]
+                kw["distance_kpc"] = satellite.galactocentric_distance_kpc
+            mean, sd = lognormal_prior(rel, values["m200"], **kw)
+            x = numpyro.sample(f"log10_{name}", dist.Normal(mean, sd))
+            values[name] = numpyro.deterministic(name, 10.0**x)
+    return values
+
+
+def sigma_at_stars(sig_grid, data):
+    """Linear interpolation of ln sigma_los in ln theta from the grid to the stars."""
+    ls = jnp.log(jnp.maximum(sig_grid, 1e-30))
+    return jnp.exp(ls[data.idx] * (1.0 - data.w) + ls[data.idx + 1] * data.w)
+
+
+def make_model(
+    spec, satellite, data, orders=FAST, binaries=None, foreground=None, keep_terms=False
+):
+    """A numpyro model (no arguments) for ``spec`` fitted to ``data`` (:class:`FitData`).
+
+    ``binaries``: None, or a :class:`halo.physics.binaries.BinaryMixture` (the line-of-sight velocity
+    distribution of binary orbital motion as a scale mixture of Gaussians). With it, each star is
+    marginalised over binarity with the binary fraction ``f_binary`` (uniform prior on
+    ``binaries.fraction_range``, default [0, 1]) and its epochs used jointly (data.log_c0/log_c1/
+    log_w, see :mod:`halo.inference.likelihood`).
+
+    ``foreground``: None, or a :class:`Foreground`: each star is a mixture of member and
+    non-member with the prior membership of data.log_prior_member (a ``member_prob`` column) or
+    the spatial prior with a member fraction ``f_member`` uniform in [0, 1].
+
+    ``keep_terms``: record the per-star terms as deterministic sites (``ll_single``,
+    ``ll_binary``, ``ll_foreground``, ``log_prior_member``) for per-star probabilities.
+    """
+    rho_c = rho_crit()
+    v_center = float(np.median(np.asarray(data.v)))
+    if binaries is not None:
+        b_scales = jnp.asarray(binaries.scales)
+        log_pw = jnp.log(jnp.maximum(jnp.asarray(binaries.weights), 1e-300))
+        fb_lo, fb_hi = getattr(binaries, "fraction_range", (0.0, 1.0))
+    zero = jnp.zeros(data.n_stars)
+
+    def model():
+        v_sys, distance, r_e, m_star = sample_nuisances(satellite, v_center)
+        values = sample_spec_parameters(spec, satellite)
+        values["stellar_mass"] = m_star
+        light = satellite.light(r_e)
+        mass_model, _ = build_mass_model(spec, values, light, rho_c)
+        anis = build_anisotropy(spec, values)
+        radii = distance * jnp.tan(data.grid_theta)
+        sig = sigma_at_stars(sigma_los(mass_model, light, anis, radii, orders), data)
+        var = sig**2 + data.v_err**2
+        log_c0 = zero if data.log_c0 is None else data.log_c0
+        log_c1 = zero if data.log_c1 is None else data.log_c1
+        if binaries is None and foreground is None:
+            numpyro.sample("v", dist.Normal(v_sys, jnp.sqrt(var)), obs=data.v)
+            return
+        if binaries is None:
+            single = log_c0 + dist.Normal(v_sys, jnp.sqrt(var)).log_prob(data.v)
+            member = single
+            consistency = log_c0
+        else:
+            f_b = numpyro.sample("f_binary", dist.Uniform(fb_lo, fb_hi))
+            log_w = (
+                jnp.broadcast_to(log_pw, (data.n_stars, log_pw.shape[0]))
+                if data.log_w is None
+                else data.log_w
+            )
+            single, binary = member_log_terms(data.v, var, v_sys, log_c0, log_c1, log_w, b_scales)
+            lf, lf1 = jnp.log1p(-f_b), jnp.log(f_b)
+            member = jnp.logaddexp(lf + single, lf1 + binary)
+            consistency = jnp.logaddexp(lf + log_c0, lf1 + log_c1)
+            if keep_terms:
+                numpyro.deterministic("ll_single", single)
+                numpyro.deterministic("ll_binary", binary)
+        if foreground is None:
+            numpyro.sample("v", PerStarLikelihood(member), obs=data.v)
+            return
+        if foreground.components is None:
+            mu = numpyro.sample(
+                "v_fg",
+                dist.Uniform(v_center - FG_MEAN_HALF_WIDTH, v_center + FG_MEAN_HALF_WIDTH),
+            )
+            lo, hi = np.log10(FG_SIGMA_RANGE[0]), np.log10(FG_SIGMA_RANGE[1])
+            s_fg = 10.0 ** numpyro.sample("log10_sigma_fg", dist.Uniform(lo, hi))
+            means, sigmas, log_amps = jnp.atleast_1d(mu), jnp.atleast_1d(s_fg), jnp.zeros(1)
+        else:
+            comp = np.asarray(foreground.components, dtype=float)
+            means, sigmas = jnp.asarray(comp[:, 0]), jnp.asarray(comp[:, 1])
+            log_amps = jnp.asarray(np.log(comp[:, 2] / comp[:, 2].sum()))
+        fg = consistency + foreground_log_density(data.v, data.v_err, means, sigmas, log_amps)
+        if data.log_prior_member is not None:
+            lp_m, lp_n = data.log_prior_member, data.log_prior_non
+        else:
+            f_m = numpyro.sample("f_member", dist.Uniform(0.0, 1.0))
+            lp_m, lp_n = spatial_log_prior(
+                light, distance * jnp.tan(data.theta), distance * jnp.tan(data.theta_max), f_m
+            )
+        if keep_terms:
+            numpyro.deterministic("ll_member", member)
+            numpyro.deterministic("ll_foreground", fg)
+            numpyro.deterministic("log_prior_member", lp_m)
+            numpyro.deterministic("log_prior_non", lp_n)
+        numpyro.sample("v", PerStarLikelihood(jnp.logaddexp(lp_m + member, lp_n + fg)), obs=data.v)
+
+    return model

@@ -1,0 +1,3 @@
+"""Stage 7, pipeline: the jobs users run (fit, predict, demo), each writing its output
+folder from the earlier stages.
+"""

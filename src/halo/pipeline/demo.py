@@ -1,0 +1,230 @@
+"""The embedded demo: a fictional satellite and its mock catalogue, shipped as package data.
+
+The satellite "Synthetica I" and its stars are invented: the catalogue was drawn by halo's own
+mock generator from an equilibrium distribution function (Eddington inversion) with the truth in
+:data:`DEMO_TRUTH` (also stored in the catalogue's metadata): members with 40% binaries, a
+second epoch for about a third of the stars, and field (foreground) stars mixed in. Regenerate
+it with
+
+    python -m halo.pipeline.demo --regenerate
+
+which rewrites ``halo/data/demo_catalogue.ecsv`` deterministically from the seed below.
+"""
+
+import json
+import sys
+from importlib import resources
+from pathlib import Path
+
+__all__ = [
+    "demo_satellite_path",
+    "demo_catalogue_path",
+    "DEMO_TRUTH",
+    "generate_demo_catalogue",
+    "run_demo",
+    "write_mock",
+]
+
+#: the halo, anisotropy and sampling behind the demo catalogue
+DEMO_TRUTH = {
+    "dark_profile": "core-nfw",
+    "m200_msun": 1.5e9,
+    "c200": 18.0,
+    "r_c_kpc": 0.06,
+    "n": 1.0,
+    "beta": 0.0,
+    "v_sys_kms": 87.3,
+    "n_stars": 120,
+    "error_range_kms": (1.0, 2.5),
+    "seed": 20261202,
+    # a realistic campaign: 40% binaries (orbits drawn one by one), a second epoch a year later
+    # for about a third of the stars, and Galactic field stars in the spectroscopic sample
+    "epochs_mjd": (60310.0, 60675.0),
+    "repeat_fraction": 0.35,
+    "binary_fraction": 0.4,
+    "n_foreground": 25,
+}
+
+#: the demo's models; its sampler settings are the defaults of ``halo fit`` except a shorter
+#: warmup (500: the demo's chains converge with ESS > 1000 per parameter, measured)
+DEMO_MODELS = ("nfw", "cored", "stars-only")
+DEMO_WARMUP = 500
+
+
+def demo_satellite_path():
+    """Path of the embedded demo satellite file (TOML)."""
+    return str(resources.files("halo").joinpath("data/demo_satellite.toml"))
+
+
+def demo_catalogue_path():
+    """Path of the embedded demo catalogue (ECSV)."""
+    return str(resources.files("halo").joinpath("data/demo_catalogue.ecsv"))
+
+
+def _demo_mock():
+    from halo.inputs.satellite import read_satellite
+    from halo.mock.catalogue import make_mock
+    from halo.physics.anisotropy import Constant
+    from halo.physics.cosmology import rho_crit
+    from halo.physics.dark import CoreNFW
+
+    t = DEMO_TRUTH
+    sat = read_satellite(demo_satellite_path())
+    dark = CoreNFW.from_m200_c200(
+        t["m200_msun"], t["c200"], rho_c=rho_crit(), r_c=t["r_c_kpc"], n=t["n"]
+    )
+    return make_mock(
+        sat,
+        dark,
+        anisotropy=Constant(t["beta"]),
+        n_stars=t["n_stars"],
+        v_sys=t["v_sys_kms"],
+        error_range_kms=t["error_range_kms"],
+        seed=t["seed"],
+        method="df",
+        epochs_mjd=t["epochs_mjd"],
+        repeat_fraction=t["repeat_fraction"],
+        binary_fraction=t["binary_fraction"],
+        n_foreground=t["n_foreground"],
+    )
+
+
+def generate_demo_catalogue(path=None):
+    """Draw the demo catalogue and write it (ECSV, truth in the metadata); returns the path."""
+    from halo.core.fileio import atomic_path
+
+    mock = _demo_mock()
+    path = Path(path or Path(__file__).parents[1] / "data" / "demo_catalogue.ecsv")
+    mock.table.meta["description"] = (
+        "Mock catalogue of the fictional satellite Synthetica I, drawn by halo's mock generator "
+        "(python -m halo.pipeline.demo --regenerate). Not real data."
+    )
+    with atomic_path(path) as tmp:
+        mock.table.write(str(tmp), format="ascii.ecsv", overwrite=True)
+    return path
+
+
+def run_demo(out_dir, progress=True):
+    """Fit the demo catalogue with the default models; returns the text to print."""
+    from halo.inputs.catalogue import read_catalogue
+    from halo.inputs.satellite import read_satellite
+    from halo.pipeline.fit import FitSettings, fit
+    from halo.products.text_report import format_summary
+
+    sat = read_satellite(demo_satellite_path())
+    stars = read_catalogue(demo_catalogue_path(), sat)
+    summary = fit(
+        stars,
+        sat,
+        out_dir,
+        DEMO_MODELS,
+        FitSettings(warmup=DEMO_WARMUP, progress=progress),
+        satellite_path=demo_satellite_path(),
+    )
+    t = stars_truth_line()
+    return format_summary(summary, out_dir) + "\n\n" + t
+
+
+def stars_truth_line():
+    """One line with the demo's truth, to set beside the recovered values."""
+    from astropy.table import Table
+
+    truth = Table.read(demo_catalogue_path(), format="ascii.ecsv").meta["truth"]
+    return (
+        f"demo truth: core-NFW halo M200 = {DEMO_TRUTH['m200_msun']:.3g} Msun, c200 = "
+        f"{DEMO_TRUTH['c200']:g}, r_c = {DEMO_TRUTH['r_c_kpc'] * 1e3:g} pc, isotropic; "
+        f"M(<r_1/2) = {truth['m_half_msun']:.3g} Msun at r_1/2 = "
+        f"{truth['r_half_3d_kpc'] * 1e3:.1f} pc; {truth['n_stars']} members of which "
+        f"{truth['n_binaries']} binaries, {truth.get('n_foreground', 0)} foreground stars"
+    )
+
+
+def write_mock(
+    satellite_path,
+    out,
+    model,
+    values,
+    *,
+    n_stars,
+    v_sys,
+    error_range,
+    method,
+    seed,
+    epochs_mjd=None,
+    repeat_fraction=1.0,
+    binary_fraction=0.0,
+    n_foreground=0,
+):
+    """``halo mock``: draw a mock from a spec at given parameter values and write it.
+
+    Returns (catalogue path, truth path). The truth JSON sits beside the catalogue.
+    """
+    import math
+
+    import numpy as np
+
+    from halo.core.errors import InputError
+    from halo.core.fileio import atomic_path, write_json
+    from halo.inputs.build import build_anisotropy, build_dark, check_values
+    from halo.inputs.satellite import read_satellite
+    from halo.inputs.spec import load_spec
+    from halo.mock.catalogue import make_mock
+    from halo.physics.cosmology import rho_crit
+
+    out = Path(out)
+    fmt = {
+        ".ecsv": "ascii.ecsv",
+        ".fits": "fits",
+        ".vot": "votable",
+        ".xml": "votable",
+        ".csv": "ascii.csv",
+    }.get(out.suffix.lower())
+    if fmt is None:
+        raise InputError(f"--out {out}: unknown catalogue format (use .ecsv, .fits, .vot, .csv)")
+    if out.exists():
+        raise InputError(f"--out {out}: file exists; choose another name")
+    sat = read_satellite(satellite_path)
+    spec = load_spec(model)
+    values = dict(values)
+    values.setdefault("stellar_mass", sat.stellar_mass_prior()[0])
+    values = check_values(spec, values)
+    dark = build_dark(spec, values, rho_crit())
+    anis = build_anisotropy(spec, values)
+    mock = make_mock(
+        sat,
+        dark,
+        values["stellar_mass"],
+        anis,
+        n_stars=n_stars,
+        v_sys=v_sys,
+        error_range_kms=error_range,
+        seed=seed,
+        method=method,
+        epochs_mjd=epochs_mjd,
+        repeat_fraction=repeat_fraction,
+        binary_fraction=binary_fraction,
+        n_foreground=n_foreground,
+    )
+    truth = dict(mock.truth)
+    truth["binary_ids"] = [int(i) for i in np.flatnonzero(np.asarray(mock.stars["is_binary"]))]
+    truth["model"] = spec.name
+    truth["parameters"] = {
+        k: (None if isinstance(v, float) and math.isinf(v) else v) for k, v in values.items()
+    }
+    table = mock.table
+    truth = json.loads(json.dumps(truth, default=float).replace("Infinity", "null"))
+    table.meta.clear()
+    if fmt == "ascii.ecsv":  # only ECSV keeps a nested record in its header
+        table.meta["truth"] = truth
+    with atomic_path(out) as tmp:
+        table.write(str(tmp), format=fmt, overwrite=True)
+    truth_path = out.with_suffix(out.suffix + ".truth.json")
+    write_json(truth_path, truth)
+    return out, truth_path
+
+
+if __name__ == "__main__":  # pragma: no cover - maintenance command
+    if "--regenerate" in sys.argv:
+        print(generate_demo_catalogue())
+    else:
+        print(__doc__)

@@ -1,0 +1,147 @@
+"""Human-readable summaries of a fit: the ECSV table and the text printed at the end of a run."""
+
+from astropy.table import Table
+
+from halo.core.fileio import atomic_path
+
+__all__ = ["summary_rows", "write_summary_table", "format_summary"]
+
+_Q = ("median", "p16", "p84", "p2.5", "p97.5", "mean", "std")
+
+
+def summary_rows(summary):
+    """(model, quantity, Q) for every quantile summary in ``summary``."""
+    rows = []
+    for model, m in summary["models"].items():
+        for k, q in m["parameters"].items():
+            rows.append((model, f"parameters.{k}", q))
+        d = m["derived"]
+        for k in (
+            "m_half_msun",
+            "r_half_3d_pc",
+            "ml_half_v",
+            "dark_mass_half_msun",
+            "log_slope_half",
+            "angle_2rh_deg",
+        ):
+            if d.get(k):
+                rows.append((model, f"derived.{k}", d[k]))
+        for group in ("log10_j", "log10_d"):
+            for angle, q in (d.get(group) or {}).items():
+                rows.append((model, f"derived.{group}.{angle}", q))
+    for name in ("walker2009", "wolf2010", "errani2018"):
+        q = summary["estimators"].get(name)
+        if q:
+            rows.append(("estimators", f"{name}_msun", q))
+    return rows
+
+
+def write_summary_table(summary, path):
+    """summary.ecsv: one row per (model, quantity) with the quantiles, convergence and evidence."""
+    rows = summary_rows(summary)
+    t = Table()
+    t["model"] = [r[0] for r in rows]
+    t["quantity"] = [r[1] for r in rows]
+    for q in _Q:
+        t[q] = [float("nan") if r[2] is None or r[2].get(q) is None else r[2][q] for r in rows]
+    conv = {m: v["converged"] for m, v in summary["models"].items()}
+    t["converged"] = [conv.get(r[0], True) for r in rows]
+    t.meta["version"] = summary["version"]
+    t.meta["created"] = summary["created"]
+    t.meta["catalogue_sha256"] = summary["catalogue"]["sha256"]
+    t.meta["comparison"] = {
+        m: v.get("vs_stars_only") for m, v in summary["models"].items() if "vs_stars_only" in v
+    }
+    t.meta["evidence"] = {m: v["evidence"] for m, v in summary["models"].items()}
+    with atomic_path(path) as tmp:
+        t.write(str(tmp), format="ascii.ecsv", overwrite=True)
+
+
+def _fmt_q(q, fmt="{:.3g}"):
+    if not q:
+        return "-"
+    med, lo, hi = q["median"], q["p16"], q["p84"]
+    return f"{fmt.format(med)} (+{fmt.format(hi - med)} / -{fmt.format(med - lo)})"
+
+
+def format_summary(summary, out_dir=None):
+    """The closing text of ``halo fit``: per model headline numbers, comparison and warnings."""
+    lines = []
+    sat = summary["satellite"]
+    cat = summary["catalogue"]
+    lines.append(f"{sat['name']}: {cat['n_stars']} stars ({cat['n_rows']} rows)")
+    est = summary["estimators"]
+    if est.get("sigma_los_kms") is not None:
+        lines.append(
+            f"global dispersion {est['sigma_los_kms']:.2f} +- {est['sigma_los_err_kms']:.2f} km/s"
+            f" ({est.get('n_stars_used', cat['n_stars'])} stars: {est.get('selection', 'all')});"
+            f" estimators: Walker09 {_g(est.get('walker2009_msun'))}, Wolf10 "
+            f"{_g(est.get('wolf2010_msun'))}, Errani18 {_g(est.get('errani2018_msun'))} Msun"
+        )
+    st = summary.get("settings", {})
+    if "foreground" in st:
+        lines.append(
+            f"binaries {'on' if st.get('binaries') else 'off'}; foreground "
+            f"{'on' if st.get('foreground') else 'off'} ({st.get('foreground_reason', '')})"
+        )
+    disp = summary.get("dispersion")
+    if disp:
+        lines.append(("" if disp["resolved"] else "*** ") + disp["message"])
+    for name, m in summary["models"].items():
+        flag = "" if m["converged"] else "   *** NOT CONVERGED ***"
+        lines.append("")
+        lines.append(f"model {name}{flag}")
+        d = m["derived"]
+        lines.append(f"  M(<r_1/2)      {_fmt_q(d['m_half_msun'])} Msun")
+        if d.get("ml_half_v"):
+            lines.append(f"  M/L_V(<r_1/2)  {_fmt_q(d['ml_half_v'])}")
+        if d.get("log10_j"):
+            lines.append(f"  log10 J(0.5)   {_fmt_q(d['log10_j']['0.5'], '{:.2f}')} GeV^2 cm^-5")
+            lines.append(f"  log10 D(0.5)   {_fmt_q(d['log10_d']['0.5'], '{:.2f}')} GeV cm^-2")
+        if m.get("binary_fraction"):
+            lines.append(f"  binary fraction {_fmt_q(m['binary_fraction'], '{:.2f}')}")
+        if m.get("effective_members") is not None:
+            lines.append(f"  members        {m['effective_members']:.1f} (effective)")
+        ul = (summary.get("upper_limits") or {}).get(name)
+        if ul:
+            lines.append(f"  M(<r_1/2) < {ul['m_half_msun_upper95']:.3g} Msun (95% upper limit)")
+            if "log10_j_upper95" in ul:
+                lines.append(
+                    f"  log10 J(0.5) < {ul['log10_j_upper95']['0.5']:.2f} (95% upper limit)"
+                )
+        ev = m["evidence"]
+        lines.append(f"  ln Z           {ev['log_z']:.2f} +- {ev['log_z_err']:.2f}")
+        c = m.get("vs_stars_only")
+        if c:
+            lines.append(
+                f"  vs stars-only: ln B = {c['ln_bayes_factor']:.2f} +- "
+                f"{c['ln_bayes_factor_err']:.2f}, delta ELPD = {c['delta_elpd']:.1f} +- "
+                f"{c['delta_elpd_se']:.1f}: {c['verdict']}"
+            )
+        loo = m["loo"]
+        if loo["n_pareto_k_above_threshold"]:
+            lines.append(
+                f"  PSIS-LOO warning: {loo['n_pareto_k_above_threshold']} stars with Pareto k > "
+                f"{loo['pareto_k_threshold']:.2f} (max {loo['pareto_k_max']:.2f}): their LOO "
+                "terms are unreliable"
+            )
+        for p in m.get("problems", []):
+            lines.append(f"  *** {p}")
+    lines.append("")
+    lines.append(
+        "Bayes factors depend on the prior ranges (e.g. of M200): read them with the priors "
+        "in `halo models`."
+    )
+    for w in summary.get("warnings", []):
+        lines.append(f"warning: {w}")
+    if out_dir is not None:
+        lines.append("")
+        lines.append(
+            f"results in {out_dir}/: report.html, summary.json, summary.ecsv, members.ecsv, "
+            "<model>/posterior.nc, figures/"
+        )
+    return "\n".join(lines)
+
+
+def _g(x):
+    return "-" if x is None else f"{x:.3g}"

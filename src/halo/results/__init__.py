@@ -1,0 +1,3 @@
+"""Stage 5, results: posterior draws -> physical quantities, per-star probabilities,
+model comparison and the summary schema.
+"""
