@@ -10,7 +10,7 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["atomic_path", "write_text", "write_json", "read_input_text"]
+__all__ = ["atomic_path", "write_text", "write_json", "write_ecsv", "read_input_text"]
 
 
 def read_input_text(path, missing="no such file"):
@@ -57,3 +57,9 @@ def write_text(path, text):
 
 def write_json(path, obj):
     write_text(path, json.dumps(obj, indent=1, allow_nan=False) + "\n")
+
+
+def write_ecsv(path, table):
+    """Write an astropy Table as ECSV, atomically (the one table writer of the outputs)."""
+    with atomic_path(path) as tmp:
+        table.write(str(tmp), format="ascii.ecsv", overwrite=True)
