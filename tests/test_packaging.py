@@ -13,7 +13,7 @@ def test_wheel_has_only_halo(tmp_path):
     # build from a copy so that the checkout gets no build/ or egg-info folders
     src = tmp_path / "src"
     ignore = shutil.ignore_patterns("__pycache__", "*.egg-info", "build", "dist")
-    for name in ("halo", "cli", "models"):
+    for name in ("src", "cli", "models"):
         shutil.copytree(ROOT / name, src / name, ignore=ignore)
     for name in ("pyproject.toml", "README.md", "LICENSE"):
         shutil.copy(ROOT / name, src / name)
@@ -30,10 +30,19 @@ def test_wheel_has_only_halo(tmp_path):
         "halo/models/nfw.toml",
         "halo/models/stars-only.toml",
         "halo/data/demo_satellite.toml",
-        "halo/jeans.py",
+        "halo/physics/jeans.py",
     )
     for needed in needed_files:
         assert needed in names, needed
+    # every stage subpackage of the source tree is in the wheel
+    for init in sorted((ROOT / "src" / "halo").rglob("__init__.py")):
+        rel = "halo/" + init.relative_to(ROOT / "src" / "halo").as_posix()
+        assert rel in names, rel
+    # and nothing of the source tree is left out
+    for path in sorted((ROOT / "src" / "halo").rglob("*")):
+        if path.is_file() and "__pycache__" not in path.parts:
+            rel = "halo/" + path.relative_to(ROOT / "src" / "halo").as_posix()
+            assert rel in names, f"{rel} is not packaged"
     # the console script points into the package
     entry = next(n for n in names if n.endswith("entry_points.txt"))
     text = zipfile.ZipFile(wheel).read(entry).decode()
