@@ -8,13 +8,14 @@ it with
 
     python -m halo.pipeline.demo --regenerate
 
-which rewrites ``halo/data/demo_catalogue.ecsv`` deterministically from the seed below.
+which rewrites ``src/halo/data/demo_catalogue.ecsv`` deterministically from the seed below.
 """
 
-import json
 import sys
 from importlib import resources
 from pathlib import Path
+
+from halo.mock.files import write_mock  # moved (the library function of `halo mock`)
 
 __all__ = [
     "demo_satellite_path",
@@ -91,7 +92,7 @@ def _demo_mock():
 
 def generate_demo_catalogue(path=None):
     """Draw the demo catalogue and write it (ECSV, truth in the metadata); returns the path."""
-    from halo.core.fileio import atomic_path
+    from halo.core.fileio import write_ecsv
 
     mock = _demo_mock()
     path = Path(path or Path(__file__).parents[1] / "data" / "demo_catalogue.ecsv")
@@ -99,8 +100,7 @@ def generate_demo_catalogue(path=None):
         "Mock catalogue of the fictional satellite Synthetica I, drawn by halo's mock generator "
         "(python -m halo.pipeline.demo --regenerate). Not real data."
     )
-    with atomic_path(path) as tmp:
-        mock.table.write(str(tmp), format="ascii.ecsv", overwrite=True)
+    write_ecsv(path, mock.table)
     return path
 
 
@@ -137,90 +137,6 @@ def stars_truth_line():
         f"{truth['r_half_3d_kpc'] * 1e3:.1f} pc; {truth['n_stars']} members of which "
         f"{truth['n_binaries']} binaries, {truth.get('n_foreground', 0)} foreground stars"
     )
-
-
-def write_mock(
-    satellite_path,
-    out,
-    model,
-    values,
-    *,
-    n_stars,
-    v_sys,
-    error_range,
-    method,
-    seed,
-    epochs_mjd=None,
-    repeat_fraction=1.0,
-    binary_fraction=0.0,
-    n_foreground=0,
-):
-    """``halo mock``: draw a mock from a spec at given parameter values and write it.
-
-    Returns (catalogue path, truth path). The truth JSON sits beside the catalogue.
-    """
-    import math
-
-    import numpy as np
-
-    from halo.core.errors import InputError
-    from halo.core.fileio import atomic_path, write_json
-    from halo.inputs.build import build_anisotropy, build_dark, check_values
-    from halo.inputs.satellite import read_satellite
-    from halo.inputs.spec import load_spec
-    from halo.mock.catalogue import make_mock
-    from halo.physics.cosmology import rho_crit
-
-    out = Path(out)
-    fmt = {
-        ".ecsv": "ascii.ecsv",
-        ".fits": "fits",
-        ".vot": "votable",
-        ".xml": "votable",
-        ".csv": "ascii.csv",
-    }.get(out.suffix.lower())
-    if fmt is None:
-        raise InputError(f"--out {out}: unknown catalogue format (use .ecsv, .fits, .vot, .csv)")
-    if out.exists():
-        raise InputError(f"--out {out}: file exists; choose another name")
-    sat = read_satellite(satellite_path)
-    spec = load_spec(model)
-    values = dict(values)
-    values.setdefault("stellar_mass", sat.stellar_mass_prior()[0])
-    values = check_values(spec, values)
-    dark = build_dark(spec, values, rho_crit())
-    anis = build_anisotropy(spec, values)
-    mock = make_mock(
-        sat,
-        dark,
-        values["stellar_mass"],
-        anis,
-        n_stars=n_stars,
-        v_sys=v_sys,
-        error_range_kms=error_range,
-        seed=seed,
-        method=method,
-        epochs_mjd=epochs_mjd,
-        repeat_fraction=repeat_fraction,
-        binary_fraction=binary_fraction,
-        n_foreground=n_foreground,
-    )
-    truth = dict(mock.truth)
-    truth["binary_ids"] = [int(i) for i in np.flatnonzero(np.asarray(mock.stars["is_binary"]))]
-    truth["model"] = spec.name
-    truth["parameters"] = {
-        k: (None if isinstance(v, float) and math.isinf(v) else v) for k, v in values.items()
-    }
-    table = mock.table
-    truth = json.loads(json.dumps(truth, default=float).replace("Infinity", "null"))
-    table.meta.clear()
-    if fmt == "ascii.ecsv":  # only ECSV keeps a nested record in its header
-        table.meta["truth"] = truth
-    with atomic_path(out) as tmp:
-        table.write(str(tmp), format=fmt, overwrite=True)
-    truth_path = out.with_suffix(out.suffix + ".truth.json")
-    write_json(truth_path, truth)
-    return out, truth_path
 
 
 if __name__ == "__main__":  # pragma: no cover - maintenance command
