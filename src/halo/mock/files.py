@@ -10,6 +10,7 @@ import numpy as np
 from halo.core.errors import InputError
 from halo.core.fileio import atomic_path, write_ecsv, write_json
 from halo.inputs.build import build_anisotropy, build_dark, check_values
+from halo.inputs.catalogue import FORMATS
 from halo.inputs.satellite import read_satellite
 from halo.inputs.spec import load_spec
 from halo.mock.catalogue import make_mock
@@ -17,14 +18,9 @@ from halo.physics.cosmology import rho_crit
 
 __all__ = ["MOCK_FORMATS", "write_mock", "mock_from_spec", "truth_record"]
 
-#: file-name ending (lower case) -> astropy format of the catalogues ``halo mock`` writes
-MOCK_FORMATS = {
-    ".ecsv": "ascii.ecsv",
-    ".fits": "fits",
-    ".vot": "votable",
-    ".xml": "votable",
-    ".csv": "ascii.csv",
-}
+#: file-name ending (lower case) -> astropy format of the catalogues ``halo mock`` writes (a
+#: subset of those the catalogue reader takes)
+MOCK_FORMATS = {ext: FORMATS[ext] for ext in (".ecsv", ".fits", ".vot", ".xml", ".csv")}
 
 
 def _output_format(out):
