@@ -1,10 +1,11 @@
 """Workspaces: stars added in three batches, versions, conflicts, reuse, history, a killed refit.
 
-The catalogue is a distribution-function mock of the demo satellite (halo.mock.catalogue) split into three
-observing runs: first epochs of 45 stars; 20 new stars plus second epochs; 15 more stars. Fits are
-kept small (2 chains x 150 + 150, nfw and stars-only, no binaries, no foreground) since the
-point here is the bookkeeping, not the posterior. The kill is a real SIGKILL of a `halo refit`
-subprocess while it is fitting.
+The catalogue is a distribution-function mock of the demo satellite (halo.mock.catalogue) split
+into three observing runs: first epochs of 45 stars; 20 new stars plus second epochs; 15 more
+stars. Fits are kept small (2 chains x 150 + 150, nfw and stars-only, no binaries, no
+foreground) since the point here is the bookkeeping, not the posterior. The kill is a real
+SIGKILL of a `halo refit` subprocess while it is fitting. The bookkeeping without fits is tested
+in test_workspace_versions.py.
 """
 
 import hashlib
@@ -25,7 +26,8 @@ from halo.mock.catalogue import make_mock
 from halo.physics.cosmology import rho_crit
 from halo.physics.dark import CoreNFW
 from halo.pipeline.demo import demo_satellite_path
-from halo.workspace.store import Workspace, history, status
+from halo.workspace.record import Workspace
+from halo.workspace.views import history, status
 
 FIT = ["--chains", "2", "--warmup", "150", "--draws", "150", "--no-binaries",
        "--no-foreground", "--quiet"]  # fmt: skip

@@ -1,0 +1,160 @@
+"""A refit: fit what changed since the last run, reusing or warm-starting the rest, safely.
+
+A run is built in runs/.partial-NNNN and renamed into place only when complete, and recorded in
+the database after that in one transaction. A process killed at any point therefore leaves the
+earlier runs, the record and all catalogue versions as they were (at worst an unfinished
+.partial folder, ignored and cleaned up by the next refit).
+"""
+
+import json
+import os
+import shutil
+import time
+
+from halo.core.fileio import atomic_path, write_text
+from halo.workspace.create import set_models
+from halo.workspace.planning import plan as make_plan
+from halo.workspace.record import now, open_workspace
+
+__all__ = ["refit", "last_settings", "headline"]
+
+_SAYS = {
+    "reuse": "unchanged, reusing run {}",
+    "warm": "refit (warm start from run {})",
+    "fit": "fit",
+}
+
+
+def headline(summary):
+    """The numbers of a run the history shows: stars, and per model convergence, M(<r_1/2),
+    effective members, log10 J(0.5 deg) and ln B against stars only where there are."""
+    out = {"n_stars": summary["catalogue"]["n_stars"], "models": {}}
+    for name, m in summary["models"].items():
+        d = m["derived"]
+        h = {
+            "converged": m["converged"],
+            "m_half_msun": d["m_half_msun"],
+            "effective_members": m.get("effective_members"),
+        }
+        if d.get("log10_j"):
+            h["log10_j_0.5"] = d["log10_j"]["0.5"]
+        if m.get("vs_stars_only"):
+            h["ln_bayes_factor"] = m["vs_stars_only"]["ln_bayes_factor"]
+            h["ln_bayes_factor_err"] = m["vs_stars_only"]["ln_bayes_factor_err"]
+        out["models"][name] = h
+    return out
+
+
+def _staged_specs(ws, specs):
+    """Paths of stable, immutable copies of the specs under their own names (a spec's file
+    name is its model name)."""
+    paths = []
+    for name, sha in specs.items():
+        named = ws.root / "specs" / sha / f"{name}.toml"
+        if not named.is_file():
+            with atomic_path(named) as tmp:
+                shutil.copyfile(ws.object_path(sha, ".toml"), tmp)
+        paths.append(str(named))
+    return paths
+
+
+def _sources(ws, plan, force):
+    """({model: run folder to reuse}, {model: run folder to warm-start from})."""
+    actions = plan["models"].items()
+    reuse = {n: ws.runs / src for n, (a, src) in actions if a == "reuse" and not force}
+    warm = {n: ws.runs / src for n, (a, src) in actions if a == "warm"}
+    return reuse, warm
+
+
+def _record(ws, seq, folder, started, plan, wall, reuse, summary):
+    ws.record_run(
+        {
+            "seq": seq,
+            "folder": folder,
+            "started": started,
+            "finished": now(),
+            "catalogue_seq": plan["catalogue"]["seq"],
+            "catalogue_sha256": plan["catalogue"]["sha256"],
+            "satellite_sha256": plan["satellite"]["sha256"],
+            "specs": plan["specs"],
+            "settings": plan["settings"],
+            "inputs_key": plan["inputs_key"],
+            "wall_s": wall,
+            "reused": {n: str(p.name) for n, p in reuse.items()},
+            "headline": headline(summary),
+            "version": summary["version"],
+        }
+    )
+
+
+def _run(ws, plan, settings, seq, force, say):
+    """Fit into runs/.partial-NNNN, rename it to runs/NNNN and record it; returns wall seconds."""
+    from halo.inputs.catalogue import read_catalogue
+    from halo.inputs.satellite import read_satellite
+    from halo.pipeline.fit import fit
+
+    folder = f"{seq:04d}"
+    partial = ws.runs / f".partial-{folder}"
+    partial.mkdir(parents=True)
+    sat_path = ws.satellite_path()
+    sat = read_satellite(sat_path)
+    stars = read_catalogue(ws.catalogue_path(plan["catalogue"]["sha256"]), sat)
+    models = _staged_specs(ws, plan["specs"])
+    reuse, warm = _sources(ws, plan, force)
+    for n, (a, src) in plan["models"].items():
+        say(f"{n}: " + _SAYS[a].format(src))
+    started = now()
+    t0 = time.perf_counter()
+    summary = fit(
+        stars, sat, partial, models, settings, satellite_path=sat_path, reuse=reuse,
+        warm=warm,
+    )  # fmt: skip
+    wall = time.perf_counter() - t0
+    summary_ws = {
+        "run": seq,
+        "catalogue_version": plan["catalogue"]["seq"],
+        "catalogue_version_sha256": plan["catalogue"]["sha256"],
+    }
+    write_text(partial / "workspace_run.json", json.dumps(summary_ws, indent=1) + "\n")
+    os.replace(partial, ws.runs / folder)
+    _record(ws, seq, folder, started, plan, wall, reuse, summary)
+    return wall
+
+
+def refit(root, settings=None, force=False, say=print, models=None):
+    """Fit what changed since the last run; returns (run folder, message).
+
+    ``models``: spec names or paths to add to (or update in) the workspace first.
+    """
+    from halo.pipeline.fit import FitSettings
+
+    settings = FitSettings() if settings is None else settings
+    ws = open_workspace(root)
+    with ws.lock("refit"):
+        if models:
+            set_models(ws, models)
+        for stale in ws.runs.glob(".partial-*"):  # left by a killed refit
+            shutil.rmtree(stale, ignore_errors=True)
+        plan = make_plan(ws, settings)
+        if plan["up_to_date"] and not force:
+            last = plan["last"]
+            return ws.runs / last["folder"], (
+                f"nothing changed since run {last['seq']}: results in {ws.runs / last['folder']}"
+            )
+        seq = (plan["last"]["seq"] if plan["last"] else 0) + 1
+        wall = _run(ws, plan, settings, seq, force, say)
+    folder = ws.runs / f"{seq:04d}"
+    return folder, f"run {seq} written to {folder} ({wall:.0f} s)"
+
+
+def last_settings(root, **overrides):
+    """FitSettings of the workspace's last run (defaults before the first), with ``overrides``
+    (None values ignored): a refit keeps the settings the user chose before."""
+    from halo.pipeline.fit import FitSettings
+
+    ws = open_workspace(root)
+    runs = ws.runs_list()
+    base = dict(runs[-1]["settings"]) if runs else {}
+    base.update({k: v for k, v in overrides.items() if v is not None})
+    fields = {f for f in FitSettings.__dataclass_fields__}
+    return FitSettings(**{k: v for k, v in base.items() if k in fields})
