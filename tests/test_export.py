@@ -25,13 +25,9 @@ from halo.core.errors import InputError
 from halo.physics.cosmology import rho_crit
 from halo.physics.dark import NFW
 from halo.physics.jfactor import d_factor, dj_domega, j_factor, log10_j
-from halo.products.export import (
-    export_run,
-    pixel_average_radial,
-    read_posterior,
-    read_run,
-    tan_pixel_solid_angles,
-)
+from halo.products.export import export_run
+from halo.products.rundir import read_posterior, read_run
+from halo.products.tan_pixels import pixel_average_radial, tan_pixel_solid_angles
 
 SAT = {
     "name": "Test dwarf",
