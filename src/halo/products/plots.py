@@ -55,43 +55,25 @@ def _title(ax, text, summary, name=None):
     ax.set_title(text, color="red" if bad else "black", fontsize=10)
 
 
-def make_figures(results, stars, satellite, sigma_angles, folder, summary):
-    """Write the figures; returns their paths."""
-    from pathlib import Path
-
-    plt = _plt()
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    paths = []
-    d0 = satellite.distance_kpc
-    pc = np.tan(np.radians(np.asarray(stars.radius_deg))) * d0 * 1e3
-    names = list(summary["models"])
-    colours = dict(zip(names, _COLOURS * 3, strict=False))
-
-    # 1. dispersion profile
+def _dispersion_figure(plt, ctx, stars, sigma_angles, path):
+    """1. the binned dispersion of the stars and each model's band."""
     fig, ax = plt.subplots(figsize=(6, 4.2))
-    rb, sb, lo, hi = binned_dispersion(pc, np.asarray(stars.v), np.asarray(stars.v_err))
+    rb, sb, lo, hi = binned_dispersion(ctx["pc"], np.asarray(stars.v), np.asarray(stars.v_err))
     ax.errorbar(rb, sb, yerr=[sb - lo, hi - sb], fmt="ko", label="data (binned, ML)", zorder=5)
-    r_grid = np.tan(np.radians(sigma_angles)) * d0 * 1e3
-    for n in names:
-        _band(ax, r_grid, results[n]["derived"]["sigma_los_kms"], colours[n], n)
+    r_grid = np.tan(np.radians(sigma_angles)) * ctx["d0"] * 1e3
+    for n in ctx["names"]:
+        _band(ax, r_grid, ctx["results"][n]["derived"]["sigma_los_kms"], ctx["colours"][n], n)
     ax.set_xscale("log")
     ax.set_xlabel("projected radius R [pc] (circularised, at the catalogue distance)")
     ax.set_ylabel(r"$\sigma_{\rm los}$ [km/s]")
     ax.legend(fontsize=8)
-    _title(ax, f"{satellite.name}: velocity dispersion (bands: 68%)", summary)
-    paths.append(folder / "dispersion_profile.png")
-    _save(fig, paths[-1])
+    _title(ax, f"{ctx['sat_name']}: velocity dispersion (bands: 68%)", ctx["summary"])
+    _save(fig, path)
     plt.close(fig)
 
-    # 2. mass profile
-    fig, ax = plt.subplots(figsize=(6, 4.2))
-    radii = np.asarray(PROFILE_RADII_PC)
-    for n in names:
-        _band(ax, radii, results[n]["derived"]["mass_total_msun"], colours[n], f"{n} (total)")
-    ms = results[names[0]]["derived"]["mass_stars_msun"]
-    ax.plot(radii, np.median(ms, axis=0), "k--", label="stars")
-    est = summary["estimators"]
+
+def _estimator_points(ax, est):
+    """The closed-form estimators at their radii, with their 68% intervals."""
     for key, mk in (("walker2009", "s"), ("wolf2010", "D"), ("errani2018", "^")):
         q = est.get(key)
         if q:
@@ -105,37 +87,75 @@ def make_figures(results, stars, satellite, sigma_angles, folder, summary):
                 mfc="white",
                 label=key,
             )
+
+
+def _mass_figure(plt, ctx, path):
+    """2. each model's enclosed mass, the stars alone and the estimators."""
+    results, names, summary = ctx["results"], ctx["names"], ctx["summary"]
+    fig, ax = plt.subplots(figsize=(6, 4.2))
+    radii = np.asarray(PROFILE_RADII_PC)
+    for n in names:
+        _band(
+            ax, radii, results[n]["derived"]["mass_total_msun"], ctx["colours"][n], f"{n} (total)"
+        )
+    ms = results[names[0]]["derived"]["mass_stars_msun"]
+    ax.plot(radii, np.median(ms, axis=0), "k--", label="stars")
+    _estimator_points(ax, summary["estimators"])
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlabel("r [pc]")
     ax.set_ylabel(r"M(<r) [M$_\odot$]")
     ax.legend(fontsize=7)
-    _title(ax, f"{satellite.name}: enclosed mass (bands: 68%)", summary)
-    paths.append(folder / "mass_profile.png")
-    _save(fig, paths[-1])
+    _title(ax, f"{ctx['sat_name']}: enclosed mass (bands: 68%)", summary)
+    _save(fig, path)
     plt.close(fig)
 
-    # 3. J(theta)
+
+def _jfactor_figure(plt, ctx, dark, path):
+    """3. J against the cone half-angle of each dark model (68% and 95% bands)."""
+    fig, ax = plt.subplots(figsize=(6, 4.2))
+    th = np.asarray(CURVE_ANGLES)
+    for n in dark:
+        j = ctx["results"][n]["derived"]["log10_j_curve"]
+        q = np.percentile(j, [2.5, 16, 50, 84, 97.5], axis=0)
+        colour = ctx["colours"][n]
+        ax.fill_between(th, q[0], q[4], color=colour, alpha=0.15)
+        ax.fill_between(th, q[1], q[3], color=colour, alpha=0.35)
+        ax.plot(th, q[2], color=colour, label=n)
+    ax.set_xscale("log")
+    ax.set_xlabel(r"cone half-angle $\theta$ [deg]")
+    ax.set_ylabel(r"log$_{10}$ J [GeV$^2$ cm$^{-5}$]")
+    ax.legend(fontsize=8)
+    _title(ax, f"{ctx['sat_name']}: J-factor (bands: 68% and 95%)", ctx["summary"])
+    _save(fig, path)
+    plt.close(fig)
+
+
+def make_figures(results, stars, satellite, sigma_angles, folder, summary):
+    """Write the figures; returns their paths."""
+    from pathlib import Path
+
+    plt = _plt()
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    d0 = satellite.distance_kpc
+    names = list(summary["models"])
+    ctx = {
+        "results": results,
+        "summary": summary,
+        "names": names,
+        "colours": dict(zip(names, _COLOURS * 3, strict=False)),
+        "d0": d0,
+        "pc": np.tan(np.radians(np.asarray(stars.radius_deg))) * d0 * 1e3,
+        "sat_name": satellite.name,
+    }
+    paths = [folder / "dispersion_profile.png", folder / "mass_profile.png"]
+    _dispersion_figure(plt, ctx, stars, sigma_angles, paths[0])
+    _mass_figure(plt, ctx, paths[1])
     dark = [n for n in names if "log10_j_curve" in results[n]["derived"]]
     if dark:
-        fig, ax = plt.subplots(figsize=(6, 4.2))
-        th = np.asarray(CURVE_ANGLES)
-        for n in dark:
-            j = results[n]["derived"]["log10_j_curve"]
-            q = np.percentile(j, [2.5, 16, 50, 84, 97.5], axis=0)
-            ax.fill_between(th, q[0], q[4], color=colours[n], alpha=0.15)
-            ax.fill_between(th, q[1], q[3], color=colours[n], alpha=0.35)
-            ax.plot(th, q[2], color=colours[n], label=n)
-        ax.set_xscale("log")
-        ax.set_xlabel(r"cone half-angle $\theta$ [deg]")
-        ax.set_ylabel(r"log$_{10}$ J [GeV$^2$ cm$^{-5}$]")
-        ax.legend(fontsize=8)
-        _title(ax, f"{satellite.name}: J-factor (bands: 68% and 95%)", summary)
         paths.append(folder / "jfactor.png")
-        _save(fig, paths[-1])
-        plt.close(fig)
-
-    # 4. corner plots
+        _jfactor_figure(plt, ctx, dark, paths[-1])
     for n in names:
         paths.append(folder / f"corner_{n}.png")
         _corner(plt, results[n], paths[-1], summary, n)

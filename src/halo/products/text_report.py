@@ -2,11 +2,10 @@
 
 from astropy.table import Table
 
-from halo.core.fileio import atomic_path
+from halo.core.fileio import write_ecsv
+from halo.core.vocabulary import ESTIMATOR_NAMES, QUANTILE_KEYS, estimator_key
 
 __all__ = ["summary_rows", "write_summary_table", "format_summary"]
-
-_Q = ("median", "p16", "p84", "p2.5", "p97.5", "mean", "std")
 
 
 def summary_rows(summary):
@@ -29,10 +28,10 @@ def summary_rows(summary):
         for group in ("log10_j", "log10_d"):
             for angle, q in (d.get(group) or {}).items():
                 rows.append((model, f"derived.{group}.{angle}", q))
-    for name in ("walker2009", "wolf2010", "errani2018"):
+    for name in ESTIMATOR_NAMES:
         q = summary["estimators"].get(name)
         if q:
-            rows.append(("estimators", f"{name}_msun", q))
+            rows.append(("estimators", estimator_key(name), q))
     return rows
 
 
@@ -42,7 +41,7 @@ def write_summary_table(summary, path):
     t = Table()
     t["model"] = [r[0] for r in rows]
     t["quantity"] = [r[1] for r in rows]
-    for q in _Q:
+    for q in QUANTILE_KEYS:
         t[q] = [float("nan") if r[2] is None or r[2].get(q) is None else r[2][q] for r in rows]
     conv = {m: v["converged"] for m, v in summary["models"].items()}
     t["converged"] = [conv.get(r[0], True) for r in rows]
@@ -53,8 +52,7 @@ def write_summary_table(summary, path):
         m: v.get("vs_stars_only") for m, v in summary["models"].items() if "vs_stars_only" in v
     }
     t.meta["evidence"] = {m: v["evidence"] for m, v in summary["models"].items()}
-    with atomic_path(path) as tmp:
-        t.write(str(tmp), format="ascii.ecsv", overwrite=True)
+    write_ecsv(path, t)
 
 
 def _fmt_q(q, fmt="{:.3g}"):
@@ -64,8 +62,8 @@ def _fmt_q(q, fmt="{:.3g}"):
     return f"{fmt.format(med)} (+{fmt.format(hi - med)} / -{fmt.format(med - lo)})"
 
 
-def format_summary(summary, out_dir=None):
-    """The closing text of ``halo fit``: per model headline numbers, comparison and warnings."""
+def _run_lines(summary):
+    """The satellite, the global dispersion and estimators, the settings and the dispersion."""
     lines = []
     sat = summary["satellite"]
     cat = summary["catalogue"]
@@ -87,46 +85,63 @@ def format_summary(summary, out_dir=None):
     disp = summary.get("dispersion")
     if disp:
         lines.append(("" if disp["resolved"] else "*** ") + disp["message"])
+    return lines
+
+
+def _headline_lines(m):
+    """A model's mass, M/L, J and D at 0.5 deg, binary fraction and members."""
+    lines = []
+    d = m["derived"]
+    lines.append(f"  M(<r_1/2)      {_fmt_q(d['m_half_msun'])} Msun")
+    if d.get("ml_half_v"):
+        lines.append(f"  M/L_V(<r_1/2)  {_fmt_q(d['ml_half_v'])}")
+    if d.get("log10_j"):
+        lines.append(f"  log10 J(0.5)   {_fmt_q(d['log10_j']['0.5'], '{:.2f}')} GeV^2 cm^-5")
+        lines.append(f"  log10 D(0.5)   {_fmt_q(d['log10_d']['0.5'], '{:.2f}')} GeV cm^-2")
+    if m.get("binary_fraction"):
+        lines.append(f"  binary fraction {_fmt_q(m['binary_fraction'], '{:.2f}')}")
+    if m.get("effective_members") is not None:
+        lines.append(f"  members        {m['effective_members']:.1f} (effective)")
+    return lines
+
+
+def _comparison_lines(m, ul):
+    """A model's upper limits, evidence, comparison with stars only, LOO warning and problems."""
+    lines = []
+    if ul:
+        lines.append(f"  M(<r_1/2) < {ul['m_half_msun_upper95']:.3g} Msun (95% upper limit)")
+        if "log10_j_upper95" in ul:
+            lines.append(f"  log10 J(0.5) < {ul['log10_j_upper95']['0.5']:.2f} (95% upper limit)")
+    ev = m["evidence"]
+    lines.append(f"  ln Z           {ev['log_z']:.2f} +- {ev['log_z_err']:.2f}")
+    c = m.get("vs_stars_only")
+    if c:
+        lines.append(
+            f"  vs stars-only: ln B = {c['ln_bayes_factor']:.2f} +- "
+            f"{c['ln_bayes_factor_err']:.2f}, delta ELPD = {c['delta_elpd']:.1f} +- "
+            f"{c['delta_elpd_se']:.1f}: {c['verdict']}"
+        )
+    loo = m["loo"]
+    if loo["n_pareto_k_above_threshold"]:
+        lines.append(
+            f"  PSIS-LOO warning: {loo['n_pareto_k_above_threshold']} stars with Pareto k > "
+            f"{loo['pareto_k_threshold']:.2f} (max {loo['pareto_k_max']:.2f}): their LOO "
+            "terms are unreliable"
+        )
+    for p in m.get("problems", []):
+        lines.append(f"  *** {p}")
+    return lines
+
+
+def format_summary(summary, out_dir=None):
+    """The closing text of ``halo fit``: per model headline numbers, comparison and warnings."""
+    lines = _run_lines(summary)
     for name, m in summary["models"].items():
         flag = "" if m["converged"] else "   *** NOT CONVERGED ***"
         lines.append("")
         lines.append(f"model {name}{flag}")
-        d = m["derived"]
-        lines.append(f"  M(<r_1/2)      {_fmt_q(d['m_half_msun'])} Msun")
-        if d.get("ml_half_v"):
-            lines.append(f"  M/L_V(<r_1/2)  {_fmt_q(d['ml_half_v'])}")
-        if d.get("log10_j"):
-            lines.append(f"  log10 J(0.5)   {_fmt_q(d['log10_j']['0.5'], '{:.2f}')} GeV^2 cm^-5")
-            lines.append(f"  log10 D(0.5)   {_fmt_q(d['log10_d']['0.5'], '{:.2f}')} GeV cm^-2")
-        if m.get("binary_fraction"):
-            lines.append(f"  binary fraction {_fmt_q(m['binary_fraction'], '{:.2f}')}")
-        if m.get("effective_members") is not None:
-            lines.append(f"  members        {m['effective_members']:.1f} (effective)")
-        ul = (summary.get("upper_limits") or {}).get(name)
-        if ul:
-            lines.append(f"  M(<r_1/2) < {ul['m_half_msun_upper95']:.3g} Msun (95% upper limit)")
-            if "log10_j_upper95" in ul:
-                lines.append(
-                    f"  log10 J(0.5) < {ul['log10_j_upper95']['0.5']:.2f} (95% upper limit)"
-                )
-        ev = m["evidence"]
-        lines.append(f"  ln Z           {ev['log_z']:.2f} +- {ev['log_z_err']:.2f}")
-        c = m.get("vs_stars_only")
-        if c:
-            lines.append(
-                f"  vs stars-only: ln B = {c['ln_bayes_factor']:.2f} +- "
-                f"{c['ln_bayes_factor_err']:.2f}, delta ELPD = {c['delta_elpd']:.1f} +- "
-                f"{c['delta_elpd_se']:.1f}: {c['verdict']}"
-            )
-        loo = m["loo"]
-        if loo["n_pareto_k_above_threshold"]:
-            lines.append(
-                f"  PSIS-LOO warning: {loo['n_pareto_k_above_threshold']} stars with Pareto k > "
-                f"{loo['pareto_k_threshold']:.2f} (max {loo['pareto_k_max']:.2f}): their LOO "
-                "terms are unreliable"
-            )
-        for p in m.get("problems", []):
-            lines.append(f"  *** {p}")
+        lines += _headline_lines(m)
+        lines += _comparison_lines(m, (summary.get("upper_limits") or {}).get(name))
     lines.append("")
     lines.append(
         "Bayes factors depend on the prior ranges (e.g. of M200): read them with the priors "
