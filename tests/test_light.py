@@ -16,7 +16,8 @@ import pytest
 from scipy import integrate, optimize, special
 
 import halo  # noqa: F401  (float64)
-from halo.physics.light import LIGHT_PROFILES, Exponential, King, Plummer, _k0
+from halo.physics.light import LIGHT_PROFILES, Exponential, King, Plummer
+from halo.physics.light_exponential import _k0
 
 #: direct-constructor examples (kpc) for every registered profile
 EXAMPLES = {

@@ -38,6 +38,7 @@ import jax.numpy as jnp
 import numpy as np
 
 from halo.core.constants import G
+from halo.core.numerics import LOG_FLOOR, gauss_legendre01, safe_log
 
 __all__ = [
     "Orders",
@@ -76,12 +77,6 @@ DEFAULT = Orders()
 FAST = Orders(n_grid=64, n_panel=3, n_proj=32, n_proj_panels=1, lo_dex=-3.0, hi_dex=2.5, n_ap=24)
 
 
-@functools.cache
-def _gauss_legendre(n):
-    x, w = np.polynomial.legendre.leggauss(n)
-    return 0.5 * (x + 1.0), 0.5 * w  # on [0, 1]
-
-
 class RadialGrid(NamedTuple):
     """ln r nodes, ln(nu sigma_r^2) and its ln-slope on them, and the grid spacing."""
 
@@ -92,18 +87,9 @@ class RadialGrid(NamedTuple):
     r_hi: jnp.ndarray
 
 
-_LOG_FLOOR = -700.0  # stands for ln 0 (e.g. beyond a truncated tracer's edge)
-
-
-def _safe_log(x):
-    """ln x for x > 0, _LOG_FLOOR for x <= 0, with finite gradients (double where)."""
-    ok = x > 0
-    return jnp.where(ok, jnp.log(jnp.where(ok, x, 1.0)), _LOG_FLOOR)
-
-
 def _log_g(mass_model, light, s):
     """ln(nu G M / s): the Jeans integrand per unit ln s, without the factor f."""
-    return _safe_log(light.density(s) * G * mass_model.mass(s) / s)
+    return safe_log(light.density(s) * G * mass_model.mass(s) / s)
 
 
 def radial_grid(mass_model, light, anis, orders=DEFAULT):
@@ -125,7 +111,7 @@ def radial_grid(mass_model, light, anis, orders=DEFAULT):
     h = (ln_hi - ln_lo) / (n - 1)
     x = ln_lo + h * jnp.arange(n)
     # ln of the panel integrals of f nu G M / s over ln s in [x_k, x_k+1]
-    u, w = _gauss_legendre(orders.n_panel)
+    u, w = gauss_legendre01(orders.n_panel)
     xs = x[:-1, None] + h * u[None, :]
     ss = jnp.exp(xs)
     log_terms = jnp.log(h * w)[None, :] + anis.log_f(ss) + _log_g(mass_model, light, ss)
@@ -137,10 +123,10 @@ def radial_grid(mass_model, light, anis, orders=DEFAULT):
     lg_in = anis.log_f(r_in) + _log_g(mass_model, light, r_in)
     p = (lg_top - lg_in) / (0.5 * h)
     log_tail = lg_top - jnp.log(jnp.maximum(-p, 1.0))
-    log_tail = jnp.where(jnp.isfinite(light.r_edge()), _LOG_FLOOR, log_tail)
+    log_tail = jnp.where(jnp.isfinite(light.r_edge()), LOG_FLOOR, log_tail)
     # ln I_k = ln(sum_{j >= k} panel_j + tail)
     log_cum = jax.lax.cumlogsumexp(log_panels, axis=0, reverse=True)
-    log_int = jnp.logaddexp(jnp.concatenate([log_cum, jnp.full(1, _LOG_FLOOR)]), log_tail)
+    log_int = jnp.logaddexp(jnp.concatenate([log_cum, jnp.full(1, LOG_FLOOR)]), log_tail)
     r = jnp.exp(x)
     lnp = log_int - anis.log_f(r)  # ln(nu sigma_r^2) = ln(I / f)
     slope = -2.0 * anis.beta(r) - jnp.exp(_log_g(mass_model, light, r) - lnp)
@@ -188,7 +174,7 @@ def sigma_los2_weighted(mass_model, light, anis, R, orders=DEFAULT, grid=None):
     inside = R < grid.r_hi * (1.0 - 1e-9)
     Rc = jnp.where(inside, jnp.clip(R, r_min, grid.r_hi), r_min)
     t_max = jnp.arccosh(grid.r_hi / Rc)
-    u, w = _gauss_legendre(orders.n_proj)
+    u, w = gauss_legendre01(orders.n_proj)
     m = orders.n_proj_panels
     # panels evenly split in t; nodes (..., m * n_proj)
     edges = jnp.arange(m) / m
@@ -239,7 +225,7 @@ def aperture_dispersion(mass_model, light, anis, R_ap, orders=DEFAULT):
     grid = radial_grid(mass_model, light, anis, orders)
     r_min = jnp.exp(grid.x0)
     R_top = jnp.clip(R_ap, r_min, grid.r_hi)
-    u, w = _gauss_legendre(orders.n_ap)
+    u, w = gauss_legendre01(orders.n_ap)
     ln_a, ln_b = jnp.log(r_min), jnp.log(R_top)
     lnR = ln_a + (ln_b - ln_a) * u
     R = jnp.exp(lnR)
