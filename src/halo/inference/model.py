@@ -28,11 +28,11 @@ Likelihood
 ----------
 Plain: v_i ~ Normal(v_sys, sigma_los(R_i)^2 + err_i^2) with R_i = distance tan(theta_i) (theta_i the
 circularised angular radius). With binaries and/or foreground the per-star likelihood is the
-mixture of :mod:`halo.inference.likelihood` (epochs used jointly, binary fraction ``f_binary``, foreground
-``v_fg``/``log10_sigma_fg`` and member fraction ``f_member``). sigma_los is solved once per
-likelihood call on ``n_radii`` log-spaced angles spanning the stars and interpolated linearly in
-(ln theta, ln sigma_los); the interpolation weights are fixed data, so the cost grows with the
-number of stars only through that interpolation and the sum.
+mixture of :mod:`halo.inference.likelihood` (epochs used jointly, binary fraction ``f_binary``,
+foreground ``v_fg``/``log10_sigma_fg`` and member fraction ``f_member``). sigma_los is solved
+once per likelihood call on ``n_radii`` log-spaced angles spanning the stars and interpolated
+linearly in (ln theta, ln sigma_los); the interpolation weights are fixed data, so the cost
+grows with the number of stars only through that interpolation and the sum.
 """
 
 import dataclasses
@@ -44,6 +44,7 @@ import numpyro
 import numpyro.distributions as dist
 
 from halo.core.constants import DEG
+from halo.core.vocabulary import luminosity_v
 from halo.inference.likelihood import (
     PerStarLikelihood,
     foreground_log_density,
@@ -68,10 +69,10 @@ class FitData:
 
     ``v``/``v_err``: each star's inverse-variance weighted mean velocity over its epochs and its
     uncertainty (1/sqrt W). ``log_c0``, ``log_c1``, ``log_w``, ``bin_loc``, ``bin_scale``: the
-    multi-epoch constants of
-    :mod:`halo.inference.likelihood` (zeros and None for plain single-epoch data). ``log_prior_member`` /
-    ``log_prior_non``: ln p_i and ln(1 - p_i) from a ``member_prob`` column, or None (spatial
-    prior). ``theta_max``: the survey radius (outermost star) [rad].
+    multi-epoch constants of :mod:`halo.inference.likelihood` (zeros and None for plain
+    single-epoch data). ``log_prior_member`` / ``log_prior_non``: ln p_i and ln(1 - p_i) from a
+    ``member_prob`` column, or None (spatial prior). ``theta_max``: the survey radius (outermost
+    star) [rad].
     """
 
     v: jnp.ndarray
@@ -99,8 +100,8 @@ def make_fit_data(
 ):
     """Arrays for the likelihood from per-star velocities, errors and radii [km/s, deg].
 
-    ``epochs``: optional :class:`halo.inference.likelihood.EpochTerms`; ``member_prob``: optional per-star
-    prior membership probabilities (clipped to [1e-9, 1]); ``theta_max_deg``: survey radius
+    ``epochs``: optional :class:`halo.inference.likelihood.EpochTerms`; ``member_prob``: optional
+    per-star prior membership probabilities (clipped to [1e-9, 1]); ``theta_max_deg``: survey radius
     (default 1.001 x the outermost star).
     """
     v = np.asarray(v, dtype=float)
@@ -180,7 +181,7 @@ def sample_nuisances(satellite, v_center):
         ml = numpyro.sample("ml_v", dist.Uniform(lo, hi)) if hi > lo else lo
         mag0, dmag = satellite.absolute_magnitude_v, satellite.absolute_magnitude_v_err
         mag = numpyro.sample("abs_mag_v", dist.Normal(mag0, dmag)) if dmag > 0 else mag0
-        m_star = numpyro.deterministic("m_star", ml * 10.0 ** (-0.4 * (mag - 4.83)))
+        m_star = numpyro.deterministic("m_star", ml * luminosity_v(mag))
     r_e_kpc = r_half_pc * 1e-3 * jnp.sqrt(1.0 - satellite.ellipticity) * distance / d0
     numpyro.deterministic("r_e_kpc", r_e_kpc)
     return v_sys, distance, r_e_kpc, m_star
@@ -223,16 +224,112 @@ def sigma_at_stars(sig_grid, data):
     return jnp.exp(ls[data.idx] * (1.0 - data.w) + ls[data.idx + 1] * data.w)
 
 
+def _predicted_variance(spec, satellite, data, orders, rho_c, v_center):
+    """Priors of the nuisances and of the spec's parameters, then sigma_los^2 + err^2 per star.
+
+    Returns (v_sys, distance, light, var).
+    """
+    v_sys, distance, r_e, m_star = sample_nuisances(satellite, v_center)
+    values = sample_spec_parameters(spec, satellite)
+    values["stellar_mass"] = m_star
+    light = satellite.light(r_e)
+    mass_model, _ = build_mass_model(spec, values, light, rho_c)
+    anis = build_anisotropy(spec, values)
+    radii = distance * jnp.tan(data.grid_theta)
+    sig = sigma_at_stars(sigma_los(mass_model, light, anis, radii, orders), data)
+    return v_sys, distance, light, sig**2 + data.v_err**2
+
+
+@dataclasses.dataclass(frozen=True)
+class _BinaryTerms:
+    """The binary part of the model: mixture scales, ln weights and the binary-fraction prior."""
+
+    scales: jnp.ndarray
+    log_weights: jnp.ndarray
+    fraction_range: tuple
+
+    @classmethod
+    def of(cls, binaries):
+        return cls(
+            jnp.asarray(binaries.scales),
+            jnp.log(jnp.maximum(jnp.asarray(binaries.weights), 1e-300)),
+            getattr(binaries, "fraction_range", (0.0, 1.0)),
+        )
+
+
+def _member_block(data, var, v_sys, log_c0, log_c1, b, keep_terms):
+    """(ln L_member, epoch-consistency factor) per star, marginalised over binarity (site
+    ``f_binary``)."""
+    fb_lo, fb_hi = b.fraction_range
+    f_b = numpyro.sample("f_binary", dist.Uniform(fb_lo, fb_hi))
+    log_pw = b.log_weights
+    log_w = (
+        jnp.broadcast_to(log_pw, (data.n_stars, log_pw.shape[0]))
+        if data.log_w is None
+        else data.log_w
+    )
+    single, binary = member_log_terms(data.v, var, v_sys, log_c0, log_c1, log_w, b.scales)
+    lf, lf1 = jnp.log1p(-f_b), jnp.log(f_b)
+    member = jnp.logaddexp(lf + single, lf1 + binary)
+    consistency = jnp.logaddexp(lf + log_c0, lf1 + log_c1)
+    if keep_terms:
+        numpyro.deterministic("ll_single", single)
+        numpyro.deterministic("ll_binary", binary)
+    return member, consistency
+
+
+def _foreground_components(foreground, v_center):
+    """(means, sigmas, ln amplitudes) of the non-member velocity distribution: the user's
+    components, or one Gaussian with free mean and width (sites ``v_fg``, ``log10_sigma_fg``)."""
+    if foreground.components is None:
+        mu = numpyro.sample(
+            "v_fg",
+            dist.Uniform(v_center - FG_MEAN_HALF_WIDTH, v_center + FG_MEAN_HALF_WIDTH),
+        )
+        lo, hi = np.log10(FG_SIGMA_RANGE[0]), np.log10(FG_SIGMA_RANGE[1])
+        s_fg = 10.0 ** numpyro.sample("log10_sigma_fg", dist.Uniform(lo, hi))
+        return jnp.atleast_1d(mu), jnp.atleast_1d(s_fg), jnp.zeros(1)
+    comp = np.asarray(foreground.components, dtype=float)
+    means, sigmas = jnp.asarray(comp[:, 0]), jnp.asarray(comp[:, 1])
+    return means, sigmas, jnp.asarray(np.log(comp[:, 2] / comp[:, 2].sum()))
+
+
+def _membership_prior(data, light, distance):
+    """(ln p_i, ln(1 - p_i)): the catalogue's member_prob, or the spatial prior with a member
+    fraction ``f_member`` uniform in [0, 1]."""
+    if data.log_prior_member is not None:
+        return data.log_prior_member, data.log_prior_non
+    f_m = numpyro.sample("f_member", dist.Uniform(0.0, 1.0))
+    return spatial_log_prior(
+        light, distance * jnp.tan(data.theta), distance * jnp.tan(data.theta_max), f_m
+    )
+
+
+def _foreground_likelihood(data, foreground, member, consistency, light, distance, fixed):
+    """The observed site: each star a mixture of member and non-member (``fixed``: v_center and
+    keep_terms of :func:`make_model`)."""
+    v_center, keep_terms = fixed
+    means, sigmas, log_amps = _foreground_components(foreground, v_center)
+    fg = consistency + foreground_log_density(data.v, data.v_err, means, sigmas, log_amps)
+    lp_m, lp_n = _membership_prior(data, light, distance)
+    if keep_terms:
+        numpyro.deterministic("ll_member", member)
+        numpyro.deterministic("ll_foreground", fg)
+        numpyro.deterministic("log_prior_member", lp_m)
+        numpyro.deterministic("log_prior_non", lp_n)
+    numpyro.sample("v", PerStarLikelihood(jnp.logaddexp(lp_m + member, lp_n + fg)), obs=data.v)
+
+
 def make_model(
     spec, satellite, data, orders=FAST, binaries=None, foreground=None, keep_terms=False
 ):
     """A numpyro model (no arguments) for ``spec`` fitted to ``data`` (:class:`FitData`).
 
-    ``binaries``: None, or a :class:`halo.physics.binaries.BinaryMixture` (the line-of-sight velocity
-    distribution of binary orbital motion as a scale mixture of Gaussians). With it, each star is
-    marginalised over binarity with the binary fraction ``f_binary`` (uniform prior on
-    ``binaries.fraction_range``, default [0, 1]) and its epochs used jointly (data.log_c0/log_c1/
-    log_w, see :mod:`halo.inference.likelihood`).
+    ``binaries``: None, or a :class:`halo.physics.binaries.BinaryMixture` (the line-of-sight
+    velocity distribution of binary orbital motion as a scale mixture of Gaussians). With it,
+    each star is marginalised over binarity with the binary fraction ``f_binary`` (uniform prior
+    on ``binaries.fraction_range``, default [0, 1]) and its epochs used jointly (data.log_c0/
+    log_c1/log_w, see :mod:`halo.inference.likelihood`).
 
     ``foreground``: None, or a :class:`Foreground`: each star is a mixture of member and
     non-member with the prior membership of data.log_prior_member (a ``member_prob`` column) or
@@ -243,73 +340,27 @@ def make_model(
     """
     rho_c = rho_crit()
     v_center = float(np.median(np.asarray(data.v)))
-    if binaries is not None:
-        b_scales = jnp.asarray(binaries.scales)
-        log_pw = jnp.log(jnp.maximum(jnp.asarray(binaries.weights), 1e-300))
-        fb_lo, fb_hi = getattr(binaries, "fraction_range", (0.0, 1.0))
+    b = None if binaries is None else _BinaryTerms.of(binaries)
     zero = jnp.zeros(data.n_stars)
+    log_c0 = zero if data.log_c0 is None else data.log_c0
+    log_c1 = zero if data.log_c1 is None else data.log_c1
 
     def model():
-        v_sys, distance, r_e, m_star = sample_nuisances(satellite, v_center)
-        values = sample_spec_parameters(spec, satellite)
-        values["stellar_mass"] = m_star
-        light = satellite.light(r_e)
-        mass_model, _ = build_mass_model(spec, values, light, rho_c)
-        anis = build_anisotropy(spec, values)
-        radii = distance * jnp.tan(data.grid_theta)
-        sig = sigma_at_stars(sigma_los(mass_model, light, anis, radii, orders), data)
-        var = sig**2 + data.v_err**2
-        log_c0 = zero if data.log_c0 is None else data.log_c0
-        log_c1 = zero if data.log_c1 is None else data.log_c1
-        if binaries is None and foreground is None:
+        v_sys, distance, light, var = _predicted_variance(
+            spec, satellite, data, orders, rho_c, v_center
+        )
+        if b is None and foreground is None:
             numpyro.sample("v", dist.Normal(v_sys, jnp.sqrt(var)), obs=data.v)
             return
-        if binaries is None:
-            single = log_c0 + dist.Normal(v_sys, jnp.sqrt(var)).log_prob(data.v)
-            member = single
+        if b is None:
+            member = log_c0 + dist.Normal(v_sys, jnp.sqrt(var)).log_prob(data.v)
             consistency = log_c0
         else:
-            f_b = numpyro.sample("f_binary", dist.Uniform(fb_lo, fb_hi))
-            log_w = (
-                jnp.broadcast_to(log_pw, (data.n_stars, log_pw.shape[0]))
-                if data.log_w is None
-                else data.log_w
-            )
-            single, binary = member_log_terms(data.v, var, v_sys, log_c0, log_c1, log_w, b_scales)
-            lf, lf1 = jnp.log1p(-f_b), jnp.log(f_b)
-            member = jnp.logaddexp(lf + single, lf1 + binary)
-            consistency = jnp.logaddexp(lf + log_c0, lf1 + log_c1)
-            if keep_terms:
-                numpyro.deterministic("ll_single", single)
-                numpyro.deterministic("ll_binary", binary)
+            member, consistency = _member_block(data, var, v_sys, log_c0, log_c1, b, keep_terms)
         if foreground is None:
             numpyro.sample("v", PerStarLikelihood(member), obs=data.v)
             return
-        if foreground.components is None:
-            mu = numpyro.sample(
-                "v_fg",
-                dist.Uniform(v_center - FG_MEAN_HALF_WIDTH, v_center + FG_MEAN_HALF_WIDTH),
-            )
-            lo, hi = np.log10(FG_SIGMA_RANGE[0]), np.log10(FG_SIGMA_RANGE[1])
-            s_fg = 10.0 ** numpyro.sample("log10_sigma_fg", dist.Uniform(lo, hi))
-            means, sigmas, log_amps = jnp.atleast_1d(mu), jnp.atleast_1d(s_fg), jnp.zeros(1)
-        else:
-            comp = np.asarray(foreground.components, dtype=float)
-            means, sigmas = jnp.asarray(comp[:, 0]), jnp.asarray(comp[:, 1])
-            log_amps = jnp.asarray(np.log(comp[:, 2] / comp[:, 2].sum()))
-        fg = consistency + foreground_log_density(data.v, data.v_err, means, sigmas, log_amps)
-        if data.log_prior_member is not None:
-            lp_m, lp_n = data.log_prior_member, data.log_prior_non
-        else:
-            f_m = numpyro.sample("f_member", dist.Uniform(0.0, 1.0))
-            lp_m, lp_n = spatial_log_prior(
-                light, distance * jnp.tan(data.theta), distance * jnp.tan(data.theta_max), f_m
-            )
-        if keep_terms:
-            numpyro.deterministic("ll_member", member)
-            numpyro.deterministic("ll_foreground", fg)
-            numpyro.deterministic("log_prior_member", lp_m)
-            numpyro.deterministic("log_prior_non", lp_n)
-        numpyro.sample("v", PerStarLikelihood(jnp.logaddexp(lp_m + member, lp_n + fg)), obs=data.v)
+        fixed = (v_center, keep_terms)
+        _foreground_likelihood(data, foreground, member, consistency, light, distance, fixed)
 
     return model
