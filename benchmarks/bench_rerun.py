@@ -23,7 +23,10 @@ from halo.physics.cosmology import rho_crit
 from halo.physics.dark import CoreNFW
 from halo.pipeline.demo import demo_satellite_path
 from halo.pipeline.fit import FitSettings
-from halo.workspace.store import add_catalogue, history, init_workspace, latest_run_folder, refit
+from halo.workspace.catalogues import add_catalogue
+from halo.workspace.create import init_workspace
+from halo.workspace.refit import refit
+from halo.workspace.views import history, latest_run_folder
 
 
 def main():

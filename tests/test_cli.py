@@ -215,3 +215,28 @@ def test_console_script_exit_codes(tmp_path):
     )
     assert res.returncode == 2
     assert "Traceback" not in res.stderr and len(res.stderr.strip().splitlines()) == 1
+
+
+MOCK = ["mock", "demo", "--model", "cored", "--set", "m200=1e9", "--set", "c200=15"]
+MOCK += ["--set", "r_c=0.05", "--set", "n=1", "--n-stars", "20", "--seed", "4"]
+
+
+def test_mock_foreground_count_new_and_old_spelling(capsys, tmp_path):
+    # `halo mock --n-foreground N` is a count; `--foreground N`, its old name, stays for one
+    # version, hidden from the help and with a note on stderr
+    new, old = tmp_path / "new.ecsv", tmp_path / "old.ecsv"
+    code, out, err = run(capsys, *MOCK, "--out", str(new), "--n-foreground", "5")
+    assert code == 0, err
+    assert "(20 stars + 5 foreground)" in out and err == ""
+    code, out, err = run(capsys, *MOCK, "--out", str(old), "--foreground", "5")
+    assert code == 0, err
+    assert "(20 stars + 5 foreground)" in out and "--n-foreground" in err
+    assert old.read_bytes() == new.read_bytes()
+    code, _, err = run(capsys, *MOCK, "--out", str(tmp_path / "x.ecsv"), "--n-foreground", "-1")
+    assert code == 2 and "--n-foreground" in err
+    code, _, err = run(
+        capsys, *MOCK, "--out", str(tmp_path / "y.ecsv"), "--foreground", "5", "--n-foreground", "4"
+    )
+    assert code == 2 and "disagree" in err
+    code, out, _ = run(capsys, "mock", "--help")
+    assert code == 0 and "--n-foreground" in out and "--foreground" not in out

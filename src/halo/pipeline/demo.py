@@ -15,15 +15,12 @@ import sys
 from importlib import resources
 from pathlib import Path
 
-from halo.mock.files import write_mock  # moved (the library function of `halo mock`)
-
 __all__ = [
     "demo_satellite_path",
     "demo_catalogue_path",
     "DEMO_TRUTH",
     "generate_demo_catalogue",
     "run_demo",
-    "write_mock",
 ]
 
 #: the halo, anisotropy and sampling behind the demo catalogue

@@ -1,0 +1,79 @@
+"""Parsing of command-line option values: lists, KEY=VALUE pairs, counts, output folders."""
+
+import math
+import os
+from pathlib import Path
+
+__all__ = [
+    "UsageFailure",
+    "fail",
+    "parse_list",
+    "parse_set",
+    "positive_int",
+    "check_out_dir",
+    "satellite_path",
+]
+
+
+class UsageFailure(Exception):
+    """Raised by commands for bad option values (exit 2)."""
+
+
+def fail(msg):
+    raise UsageFailure(msg)
+
+
+def parse_list(text, option):
+    """Comma-separated positive numbers (None when the option was not given)."""
+    if text is None:
+        return None
+    try:
+        vals = [float(x) for x in text.replace(" ", "").split(",") if x != ""]
+    except ValueError:
+        fail(f"{option}: expected comma-separated numbers, got {text!r}")
+    if not vals:
+        fail(f"{option}: empty list")
+    for v in vals:
+        if not math.isfinite(v) or v <= 0:
+            fail(f"{option}: values must be positive, got {v}")
+    return vals
+
+
+def parse_set(items):
+    """{key: number} of repeated ``--set KEY=VALUE`` options."""
+    out = {}
+    for item in items or []:
+        if "=" not in item:
+            fail(f"--set: expected KEY=VALUE, got {item!r}")
+        k, v = item.split("=", 1)
+        k = k.strip()
+        try:
+            out[k] = float(v)
+        except ValueError:
+            fail(f"--set {k}: expected a number, got {v!r}")
+    return out
+
+
+def positive_int(value, option):
+    if value < 1:
+        fail(f"{option}: must be a positive integer, got {value}")
+    return value
+
+
+def check_out_dir(out, overwrite):
+    """The output folder of a fit, refused when it holds results and ``overwrite`` is off."""
+    out = Path(out)
+    if out.exists() and not out.is_dir():
+        fail(f"--out {out}: exists and is not a folder")
+    if (out / "summary.json").exists() and not overwrite:
+        fail(f"--out {out}: already holds results; choose another folder or pass --overwrite")
+    return out
+
+
+def satellite_path(name):
+    """'demo' names the embedded demo satellite file; anything else is a path."""
+    if name == "demo" and not os.path.exists(name):
+        from halo.pipeline.demo import demo_satellite_path
+
+        return demo_satellite_path()
+    return name

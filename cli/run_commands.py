@@ -1,0 +1,209 @@
+"""Commands on one satellite without a workspace: models, predict, fit, demo and mock."""
+
+import json
+
+import typer
+
+from halo.cli.options import (
+    check_out_dir,
+    fail,
+    parse_list,
+    parse_set,
+    positive_int,
+    satellite_path,
+)
+
+__all__ = ["models_cmd", "predict_cmd", "fit_cmd", "demo_cmd", "mock_cmd"]
+
+
+def models_cmd(
+    json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
+):
+    """List the model specs and their parameters."""
+    from halo.inputs.spec import available_specs, load_spec
+    from halo.products.console import format_models, models_json
+
+    specs = [load_spec(n) for n in available_specs()]
+    if json_out:
+        typer.echo(json.dumps(models_json(specs), indent=1, default=str))
+        return
+    typer.echo(format_models(specs))
+
+
+def predict_cmd(
+    satellite: str = typer.Argument(
+        ..., help="satellite description file (TOML), or 'demo' for the embedded demo satellite"
+    ),
+    model: str = typer.Option(..., "--model", help="model spec name (see `halo models`) or path"),
+    set_: list[str] = typer.Option(None, "--set", help="parameter value, KEY=VALUE (repeatable)"),
+    radii_pc: str = typer.Option(None, "--radii-pc", help="comma-separated projected radii [pc]"),
+    angles_deg: str = typer.Option(None, "--angles-deg", help="comma-separated cone angles [deg]"),
+    json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
+):
+    """Velocity dispersion, enclosed mass, J and D of one model at given parameters."""
+    from halo.inputs.satellite import read_satellite
+    from halo.inputs.spec import load_spec
+    from halo.pipeline.predict import predict
+    from halo.products.console import format_prediction
+
+    values = parse_set(set_)
+    radii = parse_list(radii_pc, "--radii-pc")
+    angles = parse_list(angles_deg, "--angles-deg")
+    sat = read_satellite(satellite_path(satellite))
+    spec = load_spec(model)
+    res = predict(spec, sat, values, radii, angles)
+    if json_out:
+        typer.echo(json.dumps(res))
+        return
+    typer.echo(format_prediction(res, sat))
+
+
+def fit_cmd(
+    catalogue: str = typer.Argument(..., help="velocity catalogue (ECSV, FITS, VOTable or CSV)"),
+    satellite: str = typer.Argument(..., help="satellite description file (TOML) or 'demo'"),
+    out: str = typer.Option(..., "--out", help="output folder"),
+    model: list[str] = typer.Option(
+        None, "--model", help="model spec name or path (repeatable; default nfw, cored)"
+    ),
+    chains: int = typer.Option(4, "--chains", help="number of chains"),
+    warmup: int = typer.Option(1000, "--warmup", help="warmup steps per chain"),
+    draws: int = typer.Option(1000, "--draws", help="kept draws per chain"),
+    seed: int = typer.Option(0, "--seed", help="random seed"),
+    column: list[str] = typer.Option(
+        None, "--column", help="column override ROLE=NAME, e.g. vlos=VHEL (repeatable)"
+    ),
+    overwrite: bool = typer.Option(False, "--overwrite", help="replace results already in --out"),
+    binaries: bool = typer.Option(
+        True,
+        "--binaries/--no-binaries",
+        help="marginalise each star over binary orbital motion, epochs used jointly (free "
+        "binary fraction); on by default",
+    ),
+    foreground: bool | None = typer.Option(
+        None,
+        "--foreground/--no-foreground",
+        help="mix members with a broad non-member velocity distribution; default: on when the "
+        "catalogue reaches beyond the members (member_prob column or far velocity outliers)",
+    ),
+    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+):
+    """Fit the models to a catalogue and compare each with stars alone."""
+    from halo.inputs.catalogue import parse_column_overrides, read_catalogue
+    from halo.inputs.satellite import read_satellite
+    from halo.pipeline.fit import DEFAULT_MODELS, FitSettings, fit
+    from halo.products.text_report import format_summary
+
+    for v, o in ((chains, "--chains"), (warmup, "--warmup"), (draws, "--draws")):
+        positive_int(v, o)
+    out_dir = check_out_dir(out, overwrite)
+    sat_path = satellite_path(satellite)
+    sat = read_satellite(sat_path)
+    stars = read_catalogue(catalogue, sat, parse_column_overrides(column))
+    for note in stars.notes:
+        typer.echo(f"note: {note}", err=True)
+    for w in stars.warnings:
+        typer.echo(f"warning: {w}", err=True)
+    settings = FitSettings(
+        chains=chains,
+        warmup=warmup,
+        draws=draws,
+        seed=seed,
+        progress=not quiet,
+        binaries=binaries,
+        foreground="auto" if foreground is None else foreground,
+    )
+    models = list(model) if model else list(DEFAULT_MODELS)
+    summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)
+    typer.echo(format_summary(summary, out_dir))
+
+
+def demo_cmd(
+    out: str = typer.Option("halo-demo-output", "--out", help="output folder"),
+    overwrite: bool = typer.Option(True, "--overwrite/--keep", help="replace an earlier demo run"),
+    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+):
+    """The whole job on the embedded fictional satellite and its mock catalogue."""
+    from halo.pipeline.demo import run_demo
+
+    out_dir = check_out_dir(out, overwrite)
+    typer.echo(run_demo(out_dir, progress=not quiet))
+
+
+def _foreground_count(n_foreground, old_spelling):
+    """The number of field stars of ``halo mock`` from --n-foreground or its old name."""
+    option = "--n-foreground"
+    if old_spelling is not None:
+        if n_foreground not in (0, old_spelling):
+            fail("--foreground and --n-foreground disagree: give --n-foreground only")
+        typer.echo(
+            "note: `halo mock --foreground N` is now `--n-foreground N`; the old spelling "
+            "will be removed in the next version",
+            err=True,
+        )
+        n_foreground, option = old_spelling, "--foreground"
+    if n_foreground < 0:
+        fail(f"{option}: expected a non-negative number of stars, got {n_foreground!r}")
+    return n_foreground
+
+
+def _check_fraction(value, name):
+    if not 0.0 <= value <= 1.0:
+        fail(f"{name}: expected a number between 0 and 1, got {value!r}")
+
+
+def mock_cmd(
+    satellite: str = typer.Argument(..., help="satellite description file (TOML) or 'demo'"),
+    out: str = typer.Option(..., "--out", help="output catalogue (.ecsv, .fits, .vot or .csv)"),
+    model: str = typer.Option("nfw", "--model", help="model spec giving the halo and anisotropy"),
+    set_: list[str] = typer.Option(None, "--set", help="parameter value, KEY=VALUE (repeatable)"),
+    n_stars: int = typer.Option(100, "--n-stars", help="number of stars"),
+    v_sys: float = typer.Option(0.0, "--v-sys", help="systemic velocity [km/s]"),
+    errors: str = typer.Option("1,3", "--errors", help="velocity error range LO,HI [km/s]"),
+    method: str = typer.Option("df", "--method", help="df (equilibrium) or gaussian (approximate)"),
+    seed: int = typer.Option(0, "--seed", help="random seed"),
+    epochs: str = typer.Option(
+        None, "--epochs", help="observing epochs as MJDs, e.g. 60000,60365 (adds an mjd column)"
+    ),
+    repeat_fraction: float = typer.Option(
+        1.0, "--repeat-fraction", help="fraction of stars observed at every epoch"
+    ),
+    binary_fraction: float = typer.Option(
+        0.0, "--binary-fraction", help="fraction of members that are binaries (orbits drawn)"
+    ),
+    n_foreground: int = typer.Option(
+        0, "--n-foreground", help="number of non-member field stars to add"
+    ),
+    old_foreground: int = typer.Option(
+        None, "--foreground", hidden=True, help="old name of --n-foreground (one version)"
+    ),
+):
+    """A mock catalogue with a known truth (written beside it as JSON)."""
+    from halo.mock.files import write_mock
+    from halo.products.console import format_mock_written
+
+    positive_int(n_stars, "--n-stars")
+    err = parse_list(errors, "--errors")
+    if len(err) != 2 or err[0] > err[1]:
+        fail("--errors: expected LO,HI with LO <= HI")
+    if method not in ("df", "gaussian"):
+        fail(f"--method: expected df or gaussian, got {method!r}")
+    mjds = None if epochs is None else parse_list(epochs, "--epochs")
+    _check_fraction(repeat_fraction, "--repeat-fraction")
+    _check_fraction(binary_fraction, "--binary-fraction")
+    n_foreground = _foreground_count(n_foreground, old_foreground)
+    path, truth_path = write_mock(
+        satellite_path(satellite),
+        out,
+        model,
+        parse_set(set_),
+        n_stars=n_stars,
+        v_sys=v_sys,
+        error_range=tuple(err),
+        method=method,
+        seed=seed,
+        epochs_mjd=mjds,
+        repeat_fraction=repeat_fraction,
+        binary_fraction=binary_fraction,
+        n_foreground=n_foreground,
+    )
+    typer.echo(format_mock_written(path, truth_path, n_stars, n_foreground))

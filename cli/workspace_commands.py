@@ -1,0 +1,144 @@
+"""Commands on a satellite workspace: init, add, refit, status, history, and export (of a
+workspace's latest run or of any fit folder)."""
+
+import json
+from pathlib import Path
+
+import typer
+
+from halo.cli.options import parse_list, positive_int, satellite_path
+
+__all__ = ["init_cmd", "add_cmd", "refit_cmd", "status_cmd", "history_cmd", "export_cmd"]
+
+
+def init_cmd(
+    workspace: str = typer.Argument(..., help="new workspace folder"),
+    satellite: str = typer.Option(..., "--satellite", help="satellite description file (TOML)"),
+    model: list[str] = typer.Option(
+        None, "--model", help="model spec name or path (repeatable; default nfw, cored)"
+    ),
+):
+    """Create a workspace for one satellite: catalogue versions, runs and their history."""
+    from halo.workspace.create import init_workspace
+
+    ws = init_workspace(workspace, satellite_path(satellite), list(model) if model else None)
+    typer.echo(f"workspace {ws.root} created; add stars with `halo add {ws.root} CATALOGUE`")
+
+
+def add_cmd(
+    workspace: str = typer.Argument(..., help="workspace folder"),
+    catalogue: str = typer.Argument(..., help="velocity catalogue with new stars or epochs"),
+    replace: bool = typer.Option(
+        False, "--replace", help="let new values supersede conflicting measurements"
+    ),
+    column: list[str] = typer.Option(
+        None, "--column", help="column override ROLE=NAME, e.g. vlos=VHEL (repeatable)"
+    ),
+):
+    """Merge a catalogue's stars and epochs into a new catalogue version."""
+    from halo.inputs.catalogue import parse_column_overrides
+    from halo.products.console import format_added
+    from halo.workspace.catalogues import add_catalogue
+
+    r = add_catalogue(workspace, catalogue, parse_column_overrides(column), replace=replace)
+    typer.echo(format_added(r))
+
+
+def refit_cmd(
+    workspace: str = typer.Argument(..., help="workspace folder"),
+    chains: int = typer.Option(None, "--chains", help="number of chains (default: as last run)"),
+    warmup: int = typer.Option(None, "--warmup", help="warmup steps per chain"),
+    draws: int = typer.Option(None, "--draws", help="kept draws per chain"),
+    seed: int = typer.Option(None, "--seed", help="random seed"),
+    binaries: bool | None = typer.Option(
+        None, "--binaries/--no-binaries", help="model binaries (default: as last run, on)"
+    ),
+    foreground: bool | None = typer.Option(
+        None, "--foreground/--no-foreground", help="model foreground (default: as last run)"
+    ),
+    force: bool = typer.Option(False, "--force", help="refit every model even if unchanged"),
+    model: list[str] = typer.Option(
+        None, "--model", help="add or update a model spec (name or path; repeatable)"
+    ),
+    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+):
+    """Fit what changed since the last run (unchanged models are reused, others warm-started).
+
+    Options left out keep the values of the workspace's last run (the defaults of `halo fit`
+    before the first run).
+    """
+    from halo.products.rundir import read_summary
+    from halo.products.text_report import format_summary
+    from halo.workspace.refit import last_settings, refit
+
+    for v, o in ((chains, "--chains"), (warmup, "--warmup"), (draws, "--draws")):
+        if v is not None:
+            positive_int(v, o)
+    settings = last_settings(
+        workspace,
+        chains=chains,
+        warmup=warmup,
+        draws=draws,
+        seed=seed,
+        binaries=binaries,
+        foreground=foreground,
+        progress=not quiet,
+    )
+
+    def say(msg):
+        if not quiet:
+            typer.echo(msg, err=True)
+
+    folder, message = refit(
+        workspace, settings, force=force, say=say, models=list(model) if model else None
+    )
+    typer.echo(format_summary(read_summary(folder), folder))
+    typer.echo(message)
+
+
+def status_cmd(
+    workspace: str = typer.Argument(..., help="workspace folder"),
+    json_out: bool = typer.Option(False, "--json", help="one JSON object on stdout"),
+):
+    """What is stale in a workspace and what the next refit would do."""
+    from halo.products.console import format_status
+    from halo.workspace.views import status
+
+    st = status(workspace)
+    typer.echo(json.dumps(st) if json_out else format_status(st))
+
+
+def history_cmd(
+    workspace: str = typer.Argument(..., help="workspace folder"),
+    json_out: bool = typer.Option(False, "--json", help="one JSON object on stdout"),
+):
+    """How the mass, J-factor, Bayes factors and members moved from run to run."""
+    from halo.products.console import format_history
+    from halo.workspace.views import history, history_figure
+
+    rows = history(workspace)
+    if json_out:
+        typer.echo(json.dumps({"runs": rows}))
+        return
+    typer.echo(format_history(rows))
+    if rows:
+        typer.echo(f"figure: {history_figure(workspace, rows)}")
+
+
+def export_cmd(
+    source: str = typer.Argument(..., help="workspace folder (its latest run) or a fit folder"),
+    out: str = typer.Option(..., "--out", help="output folder (must not hold earlier exports)"),
+    angles_deg: str = typer.Option(
+        None, "--angles-deg", help="extra cone half-angles [deg], comma-separated"
+    ),
+):
+    """J- and D-factor tables, posterior draws, FITS templates and the summary of a run."""
+    from halo.products.console import format_export
+    from halo.products.export import export_run
+    from halo.workspace.record import DB_NAME
+    from halo.workspace.views import latest_run_folder
+
+    src = Path(source)
+    run = latest_run_folder(src) if (src / DB_NAME).is_file() else src
+    written = export_run(run, out, parse_list(angles_deg, "--angles-deg"))
+    typer.echo(format_export(run, out, written))
