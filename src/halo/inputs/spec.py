@@ -92,7 +92,7 @@ class ModelSpec:
         b.pop("fraction", None)
         periods = b.pop("periods", "raghavan10")
         if periods == "duquennoy91":
-            return BinaryPopulation.duquennoy_mayor_1991(**b)
+            return BinaryPopulation.duquennoy_mayor91(**b)
         return BinaryPopulation(**b)
 
     @property
