@@ -9,15 +9,26 @@ import math
 import jax.numpy as jnp
 
 from halo.core.errors import InputError
-from halo.inputs.spec import ANISOTROPY_PARAMETERS, FIELD_NAMES, OPTIONAL_SHAPE, SHAPE_PARAMETERS
+from halo.inputs.spec import ANISOTROPY_PARAMETERS, dark_class
 from halo.physics.anisotropy import ANISOTROPIES
-from halo.physics.dark import DARK_PROFILES
 from halo.physics.mass import MassModel, Stars
 
 __all__ = ["build_dark", "build_anisotropy", "build_mass_model", "check_values"]
 
 #: anisotropy parameters that may be left out on the command line (isotropic default)
 _ANIS_DEFAULTS = {"constant": {"beta": 0.0}}
+
+#: parameters that must be positive whatever the model (a dark profile adds its own)
+_POSITIVE = ("m200", "c200", "rho_s", "r_s", "r_a", "stellar_mass", "eta")
+
+
+class _NoDark:
+    """Stands for the profile class of a stars-only model: no shape parameters."""
+
+    shape_parameters = ()
+    optional = {}
+    positive = ()
+    unit_interval = ()
 
 
 def check_values(spec, values, source="--set"):
@@ -34,6 +45,7 @@ def check_values(spec, values, source="--set"):
             )
     out = dict(_ANIS_DEFAULTS.get(spec.anisotropy, {}))
     out.update(values)
+    dark = dark_class(spec.dark_profile) if spec.has_dark else _NoDark
     if spec.has_dark:
         forms = [f for f in (("m200", "c200"), ("rho_s", "r_s")) if f[0] in out or f[1] in out]
         if len(forms) != 1 or not all(k in out for k in forms[0]):
@@ -41,23 +53,24 @@ def check_values(spec, values, source="--set"):
                 f"{source}: give the halo as m200 and c200, or as rho_s and r_s "
                 f"(model '{spec.name}')"
             )
-        for s in SHAPE_PARAMETERS[spec.dark_profile]:
-            if s not in out and s not in OPTIONAL_SHAPE:
+        for s in dark.shape_parameters:
+            if s not in out and s not in dark.optional:
                 raise InputError(f"{source}: missing parameter '{s}' for model '{spec.name}'")
     for a in ANISOTROPY_PARAMETERS[spec.anisotropy]:
         if a not in out:
             raise InputError(f"{source}: missing parameter '{a}' for model '{spec.name}'")
-    positive = {"m200", "c200", "rho_s", "r_s", "r_t", "r_c", "r_a", "stellar_mass", "eta", "alpha"}
+    positive = set(_POSITIVE) | set(dark.positive)
     for k, v in out.items():
-        if not math.isfinite(v) and not (k == "r_t" and v == math.inf):
+        if not math.isfinite(v) and not (v == math.inf and dark.optional.get(k) == math.inf):
             raise InputError(f"{source}: parameter '{k}' must be finite, got {v}")
         if k in positive and v <= 0:
             raise InputError(f"{source}: parameter '{k}' must be positive, got {v}")
     for k in ("beta", "beta_0", "beta_inf"):
         if k in out and out[k] >= 1:
             raise InputError(f"{source}: anisotropy '{k}' must be < 1, got {out[k]}")
-    if "n" in out and not 0 <= out["n"] <= 1:
-        raise InputError(f"{source}: parameter 'n' must be in [0, 1], got {out['n']}")
+    for k in dark.unit_interval:
+        if k in out and not 0 <= out[k] <= 1:
+            raise InputError(f"{source}: parameter '{k}' must be in [0, 1], got {out[k]}")
     return out
 
 
@@ -68,14 +81,13 @@ def build_dark(spec, values, rho_c):
     """
     if not spec.has_dark:
         return None
-    cls = DARK_PROFILES[spec.dark_profile]
-    rename = FIELD_NAMES.get(spec.dark_profile, {})
+    cls = dark_class(spec.dark_profile)
     shape = {}
-    for s in SHAPE_PARAMETERS[spec.dark_profile]:
+    for s in cls.shape_parameters:
         if s in values:
-            shape[rename.get(s, s)] = values[s]
-        elif s in OPTIONAL_SHAPE:
-            shape[rename.get(s, s)] = OPTIONAL_SHAPE[s]
+            shape[cls.field_names.get(s, s)] = values[s]
+        elif s in cls.optional:
+            shape[cls.field_names.get(s, s)] = cls.optional[s]
     if "m200" in values:
         return cls.from_m200_c200(values["m200"], values["c200"], rho_c=rho_c, **shape)
     return cls(rho_s=values["rho_s"], r_s=values["r_s"], **shape)

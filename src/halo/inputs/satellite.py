@@ -1,7 +1,9 @@
 """The satellite description file (TOML): centre, distance, size, shape, light, stellar mass.
 
 The keys are a contract (see the project's design notes); unknown keys, missing required keys and
-non-physical values raise :class:`halo.core.errors.InputError` with one line naming the file and key.
+non-physical values raise :class:`halo.core.errors.InputError` with one line naming the file and
+key. A light profile's shape parameters come from the keys its class declares
+(``satellite_keys``, e.g. ``king_concentration`` for the King profile).
 """
 
 import dataclasses
@@ -9,6 +11,7 @@ import math
 import tomllib
 from pathlib import Path
 
+from halo.core import vocabulary
 from halo.core.errors import InputError
 from halo.core.fileio import read_input_text
 from halo.physics.light import LIGHT_PROFILES
@@ -75,10 +78,10 @@ class Satellite:
 
     @property
     def luminosity_v(self):
-        """V-band luminosity [Lsun], 10^(-0.4 (M_V - 4.83)) (common practice); None without M_V."""
+        """V-band luminosity [Lsun], 10^(-0.4 (M_V - M_sun,V)), M_sun,V = 4.83; None without M_V."""
         if self.absolute_magnitude_v is None:
             return None
-        return 10.0 ** (-0.4 * (self.absolute_magnitude_v - 4.83))
+        return vocabulary.luminosity_v(self.absolute_magnitude_v)
 
     def stellar_mass_prior(self):
         """(median, sigma) of the stellar mass [Msun] in the form the file gives.
@@ -92,12 +95,14 @@ class Satellite:
         return 0.5 * (lo + hi) * lum, 0.5 * (hi - lo) * lum
 
     def light(self, r_half_kpc=None):
-        """The light profile (:mod:`halo.physics.light`) at the circularised radius or ``r_half_kpc``."""
+        """The light profile (:mod:`halo.physics.light`) at the circularised or the given radius.
+
+        Its shape parameters are read from the keys the profile class declares.
+        """
         r = self.r_half_circ_kpc if r_half_kpc is None else r_half_kpc
         cls = LIGHT_PROFILES[self.light_profile]
-        if self.light_profile == "king":
-            return cls.from_r_half(r, self.king_concentration)
-        return cls.from_r_half(r)
+        shape = (getattr(self, cls.satellite_keys[p]) for p in cls.shape_parameters)
+        return cls.from_r_half(r, *shape)
 
     def as_dict(self):
         d = dataclasses.asdict(self)
@@ -172,10 +177,9 @@ def parse_satellite(data, source="<memory>"):
         raise InputError(
             f"{where} key 'light_profile' must be one of {', '.join(LIGHT_PROFILES)}, got {prof!r}"
         )
-    if prof == "king" and "king_concentration" not in values:
-        raise InputError(
-            f"{where} key 'king_concentration' is required with light_profile = 'king'"
-        )
+    for key in LIGHT_PROFILES[prof].satellite_keys.values():
+        if key not in values:
+            raise InputError(f"{where} key '{key}' is required with light_profile = '{prof}'")
     if "stellar_ml_v" in values:
         ml = values["stellar_ml_v"]
         ok = (

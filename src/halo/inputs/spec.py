@@ -3,7 +3,7 @@
 A spec (shipped in ``halo/models/*.toml``, or any file the user names) holds::
 
     description = "..."
-    dark_profile = "nfw"            # a name in halo.physics.dark.DARK_PROFILES, or "none" (stars only)
+    dark_profile = "nfw"            # a name in halo.physics.dark.DARK_PROFILES, or "none"
     anisotropy = "constant"         # constant | osipkov-merritt | baes-van-hese
     [parameters.NAME]               # one table per free parameter of the model
     prior = "log-uniform"           # see PRIORS
@@ -13,8 +13,9 @@ A spec (shipped in ``halo/models/*.toml``, or any file the user names) holds::
     doc = "..."                     # optional, free text
 
 The dark halo is parametrised either by ``m200`` and ``c200`` or by ``rho_s`` and ``r_s``, plus
-its shape parameters (SHAPE_PARAMETERS). Every model also carries the stars (mass follows the
-light, stellar mass from the satellite file), the systemic velocity, and the distance and
+the shape parameters its profile class declares (``shape_parameters``, ``optional``; see
+:class:`halo.physics.dark_base.DarkProfile`). Every model also carries the stars (mass follows
+the light, stellar mass from the satellite file), the systemic velocity, and the distance and
 half-light radius as nuisance parameters: those are not listed in the spec.
 """
 
@@ -32,9 +33,8 @@ __all__ = [
     "load_spec",
     "available_specs",
     "PRIORS",
-    "SHAPE_PARAMETERS",
     "ANISOTROPY_PARAMETERS",
-    "FIELD_NAMES",
+    "dark_class",
 ]
 
 #: prior kind -> required keys
@@ -47,23 +47,6 @@ PRIORS = {
     "fixed": ("value",),
 }
 
-#: dark profile -> shape parameters by their spec / command-line names
-SHAPE_PARAMETERS = {
-    "nfw": ("r_t",),
-    "burkert": ("r_t",),
-    "core-nfw": ("r_c", "n", "r_t"),
-    "zhao": ("alpha", "beta_out", "gamma", "r_t"),
-    "einasto": ("alpha", "r_t"),
-    "none": (),
-}
-
-#: shape parameters that may be left out (with their default)
-OPTIONAL_SHAPE = {"r_t": float("inf")}
-
-#: spec / command-line name -> constructor field name, where they differ (``beta`` is the
-#: anisotropy everywhere at the interface, so Zhao's outer slope is ``beta_out`` there)
-FIELD_NAMES = {"zhao": {"beta_out": "beta"}}
-
 #: anisotropy kind -> its parameters by spec / command-line names
 ANISOTROPY_PARAMETERS = {
     "constant": ("beta",),
@@ -72,6 +55,11 @@ ANISOTROPY_PARAMETERS = {
 }
 
 _HALO_FORMS = (("m200", "c200"), ("rho_s", "r_s"))
+
+
+def dark_class(dark_profile):
+    """The profile class of a spec's ``dark_profile`` name (it declares the shape parameters)."""
+    return DARK_PROFILES[dark_profile]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -85,7 +73,7 @@ class ModelSpec:
     binaries: dict = dataclasses.field(default_factory=dict)
 
     def binary_population(self):
-        """The :class:`halo.physics.binaries.BinaryPopulation` of this spec's ``[binaries]`` table."""
+        """The :class:`halo.physics.binaries.BinaryPopulation` of the ``[binaries]`` table."""
         from halo.physics.binaries import BinaryPopulation
 
         b = dict(self.binaries)
@@ -116,7 +104,8 @@ class ModelSpec:
         """All parameter names this model accepts (spec or command line)."""
         names = set(ANISOTROPY_PARAMETERS[self.anisotropy])
         if self.has_dark:
-            names |= {"m200", "c200", "rho_s", "r_s"} | set(SHAPE_PARAMETERS[self.dark_profile])
+            shape = dark_class(self.dark_profile).shape_parameters
+            names |= {"m200", "c200", "rho_s", "r_s"} | set(shape)
         return names
 
 
@@ -189,9 +178,8 @@ def parse_spec(data, name, source):
             raise _spec_error(
                 source, "the halo needs priors on exactly one of (m200, c200) or (rho_s, r_s)"
             )
-        missing += [
-            s for s in SHAPE_PARAMETERS[dark] if s not in params and s not in OPTIONAL_SHAPE
-        ]
+        cls = dark_class(dark)
+        missing += [s for s in cls.shape_parameters if s not in params and s not in cls.optional]
     if missing:
         raise _spec_error(source, f"missing prior for parameter(s) {', '.join(missing)}")
     binaries = _binaries(data.get("binaries", {}), source)
