@@ -5,9 +5,9 @@
   exactly (Abramowitz & Stegun 1964, 25.4.29).
 - :func:`bisect`: fixed-count bisection (jit- and vmap-friendly: no data-dependent loop), the
   bracket shrinks to width / 2^n_iter.
-- :func:`safe_positive`, :func:`safe_log`, :func:`where_safe`: the "double where" guards that
-  keep gradients finite where a branch is not taken (JAX FAQ, "gradients contain NaN where using
-  where", common practice).
+- :func:`safe_positive`, :func:`safe_log` (with :data:`LOG_FLOOR`, which stands for ln 0): the
+  "double where" guards that keep gradients finite where a branch is not taken (JAX FAQ,
+  "gradients contain NaN where using where", common practice).
 """
 
 import functools
