@@ -1,7 +1,9 @@
 """The one reader of a fit output folder (``summary.json`` and ``<model>/posterior.nc``).
 
-Export, the HTML report, reuse and warm starts of a refit, and the command line all read run
-folders through these functions, so a damaged folder gives the same one-line error everywhere.
+Export, reuse and warm starts of a refit, and the command line read run folders through these
+functions, so a damaged folder gives the same one-line error everywhere. The HTML report checks
+summary.json itself (:mod:`halo.products.report_sources`): it also renders runs whose catalogue
+was not read from a file (no hash) and requires the keys its sections use.
 """
 
 import json
