@@ -1,9 +1,9 @@
 """Benchmark: log10 J at four cone half-angles for many NFW parameter draws.
 
 Run as ``.venv/bin/python benchmarks/bench_jfactor.py [--draws N] [--ref-draws M]``. Times
-:func:`halo.physics.jfactor.log10_j_draws` after compilation (best of a few repeats) and compares with a
-straightforward scipy reference (nested adaptive quadrature over angle and line of sight, the
-same one the tests use as an independent oracle), measured in the same run on a few draws and
+:func:`halo.physics.jfactor.log10_j_draws` after compilation (best of a few repeats) and compares
+with a straightforward scipy reference (nested adaptive quadrature over angle and line of sight,
+the same one the tests use as an independent oracle), measured in the same run on a few draws and
 scaled per draw. Also prints the largest difference between the two.
 """
 

@@ -1,10 +1,10 @@
 """A dwarf observed with 30% Milky Way foreground in the field.
 
-Members: an equilibrium distribution-function mock of a cored dwarf (halo.mock.catalogue). Foreground:
-uniform over the field (a disc of 5 half-light radii), velocities from a two-Gaussian mixture
-(not the single Gaussian the likelihood assumes), the same errors. The fit must recover the mass
-inside the half-light radius within its 95% interval and rank members above non-members; the ROC
-area is the Mann-Whitney statistic U / (n1 n2) (Hanley & McNeil 1982, Radiology 143, 29),
+Members: an equilibrium distribution-function mock of a cored dwarf (halo.mock.catalogue).
+Foreground: uniform over the field (a disc of 5 half-light radii), velocities from a two-Gaussian
+mixture (not the single Gaussian the likelihood assumes), the same errors. The fit must recover the
+mass inside the half-light radius within its 95% interval and rank members above non-members; the
+ROC area is the Mann-Whitney statistic U / (n1 n2) (Hanley & McNeil 1982, Radiology 143, 29),
 checked against scipy.stats.mannwhitneyu.
 """
 
@@ -17,7 +17,8 @@ from test_fit import DWARF
 
 from halo.inputs.catalogue import stars_from_table
 from halo.inputs.satellite import parse_satellite
-from halo.mock.catalogue import make_mock, sky_coordinates
+from halo.mock.catalogue import make_mock
+from halo.mock.sky import sky_coordinates
 from halo.physics.cosmology import rho_crit
 from halo.physics.dark import CoreNFW
 from halo.pipeline.fit import FitSettings, fit

@@ -113,7 +113,8 @@ def _spec_error(source, msg):
     return InputError(f"{source}: {msg}")
 
 
-def parse_spec(data, name, source):
+def _check_header(data, source):
+    """Known top-level keys, and the dark profile and anisotropy names."""
     known = {"description", "dark_profile", "anisotropy", "parameters", "binaries"}
     for key in data:
         if key not in known:
@@ -132,6 +133,50 @@ def parse_spec(data, name, source):
         raise _spec_error(
             source, f"anisotropy must be one of {', '.join(ANISOTROPIES)}, got {anis!r}"
         )
+
+
+def _check_prior(pname, p, source):
+    """One [parameters.NAME] table: a known prior kind with its keys and sensible values."""
+    if not isinstance(p, dict) or "prior" not in p:
+        raise _spec_error(source, f"parameter '{pname}' needs a table with a 'prior' key")
+    kind = p["prior"]
+    if kind not in PRIORS:
+        raise _spec_error(
+            source,
+            f"parameter '{pname}': prior must be one of {', '.join(PRIORS)}, got {kind!r}",
+        )
+    for req in PRIORS[kind]:
+        if req not in p:
+            raise _spec_error(source, f"parameter '{pname}': prior '{kind}' needs '{req}'")
+    if "low" in p and "high" in p:
+        lo, hi = p["low"], p["high"]
+        if not (isinstance(lo, int | float) and isinstance(hi, int | float) and lo < hi):
+            raise _spec_error(source, f"parameter '{pname}': need numbers with low < high")
+        if kind == "log-uniform" and lo <= 0:
+            raise _spec_error(source, f"parameter '{pname}': log-uniform needs low > 0")
+    if kind == "normal" and not p["sigma"] > 0:
+        raise _spec_error(source, f"parameter '{pname}': normal prior needs sigma > 0")
+
+
+def _check_complete(spec, params, source):
+    """Every model parameter has a prior (the halo in exactly one of its two forms)."""
+    missing = [a for a in ANISOTROPY_PARAMETERS[spec.anisotropy] if a not in params]
+    if spec.has_dark:
+        forms = [f for f in _HALO_FORMS if f[0] in params or f[1] in params]
+        if len(forms) != 1 or not all(k in params for k in forms[0]):
+            raise _spec_error(
+                source, "the halo needs priors on exactly one of (m200, c200) or (rho_s, r_s)"
+            )
+        cls = dark_class(spec.dark_profile)
+        missing += [s for s in cls.shape_parameters if s not in params and s not in cls.optional]
+    if missing:
+        raise _spec_error(source, f"missing prior for parameter(s) {', '.join(missing)}")
+
+
+def parse_spec(data, name, source):
+    """A :class:`ModelSpec` from parsed TOML ``data``; InputError naming ``source`` if invalid."""
+    _check_header(data, source)
+    dark, anis = data["dark_profile"], data["anisotropy"]
     params = data.get("parameters", {})
     if not isinstance(params, dict):
         raise _spec_error(source, "'parameters' must be a table of parameter tables")
@@ -151,37 +196,8 @@ def parse_spec(data, name, source):
                 f"parameter '{pname}' is not a parameter of a {dark} halo with {anis} anisotropy "
                 f"(allowed: {', '.join(sorted(allowed))})",
             )
-        if not isinstance(p, dict) or "prior" not in p:
-            raise _spec_error(source, f"parameter '{pname}' needs a table with a 'prior' key")
-        kind = p["prior"]
-        if kind not in PRIORS:
-            raise _spec_error(
-                source,
-                f"parameter '{pname}': prior must be one of {', '.join(PRIORS)}, got {kind!r}",
-            )
-        for req in PRIORS[kind]:
-            if req not in p:
-                raise _spec_error(source, f"parameter '{pname}': prior '{kind}' needs '{req}'")
-        if "low" in p and "high" in p:
-            lo, hi = p["low"], p["high"]
-            if not (isinstance(lo, int | float) and isinstance(hi, int | float) and lo < hi):
-                raise _spec_error(source, f"parameter '{pname}': need numbers with low < high")
-            if kind == "log-uniform" and lo <= 0:
-                raise _spec_error(source, f"parameter '{pname}': log-uniform needs low > 0")
-        if kind == "normal" and not p["sigma"] > 0:
-            raise _spec_error(source, f"parameter '{pname}': normal prior needs sigma > 0")
-    # completeness: every model parameter has a prior
-    missing = [a for a in ANISOTROPY_PARAMETERS[anis] if a not in params]
-    if spec.has_dark:
-        forms = [f for f in _HALO_FORMS if f[0] in params or f[1] in params]
-        if len(forms) != 1 or not all(k in params for k in forms[0]):
-            raise _spec_error(
-                source, "the halo needs priors on exactly one of (m200, c200) or (rho_s, r_s)"
-            )
-        cls = dark_class(dark)
-        missing += [s for s in cls.shape_parameters if s not in params and s not in cls.optional]
-    if missing:
-        raise _spec_error(source, f"missing prior for parameter(s) {', '.join(missing)}")
+        _check_prior(pname, p, source)
+    _check_complete(spec, params, source)
     binaries = _binaries(data.get("binaries", {}), source)
     return dataclasses.replace(spec, parameters=dict(params), binaries=binaries)
 

@@ -59,8 +59,7 @@ from halo.physics.dark import DARK_PROFILES
 from halo.physics.light import LIGHT_PROFILES
 from halo.physics.mass import MassModel, Stars
 
-#: sky_coordinates moved to halo.mock.sky (still importable from here)
-__all__ = ["MockCatalogue", "make_mock", "sky_coordinates"]
+__all__ = ["MockCatalogue", "make_mock"]
 
 
 class MockCatalogue(NamedTuple):
