@@ -3,8 +3,8 @@
 Run:  .venv/bin/python benchmarks/bench_fit.py [--chains 4 --warmup 1000 --draws 1000]
 
 Mocks: NFW halo (M200 = 1e9 Msun, c200 = 20) with Plummer stars (the embedded demo satellite's
-size and distance), isotropic, velocities drawn with the Gaussian (Jeans) method of halo.mock.catalogue,
-errors 1-2 km/s. The fitted model is the shipped `nfw` spec.
+size and distance), isotropic, velocities drawn with the Gaussian (Jeans) method of
+halo.mock.catalogue, errors 1-2 km/s. The fitted model is the shipped `nfw` spec.
 
 Printed per size (30, 100, 300, 3000 stars):
 - wall time of sampling including compilation (first run, cold);

@@ -1,11 +1,11 @@
 """Coverage of the binary fraction from two epochs a year apart (the epoch terms alone).
 
 Each realisation: N stars, half of them binaries drawn orbit by orbit from the default population
-(halo.physics.binaries.sample_orbits), observed twice 365 days apart with errors 0.3-0.6 km/s, intrinsic
-dispersion 0.2 km/s. The posterior of the binary fraction (uniform prior) is computed on a grid
-from the per-star single/binary likelihoods of halo.inference.likelihood, with the dispersion and systemic
-velocity held at their true values (this isolates the multi-epoch binary term). Prints each
-realisation and the bias and 95% coverage.
+(halo.physics.binaries.sample_orbits), observed twice 365 days apart with errors 0.3-0.6 km/s,
+intrinsic dispersion 0.2 km/s. The posterior of the binary fraction (uniform prior) is computed on a
+grid from the per-star single/binary likelihoods of halo.inference.likelihood, with the dispersion
+and systemic velocity held at their true values (this isolates the multi-epoch binary term). Prints
+each realisation and the bias and 95% coverage.
 
     python benchmarks/calibrate_binary_fraction.py [REALISATIONS] [N_STARS]
 """

@@ -2,10 +2,10 @@
 binaries must not look like a dark-matter-dominated system once binaries are modelled.
 
 Mock: a stars-only Plummer cluster (no dark matter) with 50% binaries at one epoch, the binary
-velocities drawn orbit by orbit (halo.physics.binaries.sample_orbits / los_velocity: Raghavan et al. 2010
-periods, Kepler orbits), not from the mixture the likelihood uses. McConnachie & Cote (2010, ApJL
-722, L209) show such binaries inflate a sub-km/s dispersion to a few km/s [memory for the
-numbers]. Both sides are kept: without the binary term the same data show a spurious signal.
+velocities drawn orbit by orbit (halo.physics.binaries.sample_orbits / los_velocity: Raghavan
+et al. 2010 periods, Kepler orbits), not from the mixture the likelihood uses. McConnachie & Cote
+(2010, ApJL 722, L209) show such binaries inflate a sub-km/s dispersion to a few km/s [memory for
+the numbers]. Both sides are kept: without the binary term the same data show a spurious signal.
 """
 
 import numpy as np

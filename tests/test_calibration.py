@@ -19,6 +19,7 @@ import jax.numpy as jnp
 import numpy as np
 import pytest
 
+from halo.core.quantiles import quantiles
 from halo.inference.model import make_fit_data, make_model
 from halo.inference.sampling import run_nuts
 from halo.inputs.catalogue import stars_from_table
@@ -29,7 +30,7 @@ from halo.physics.concentration import dutton_maccio14
 from halo.physics.cosmology import rho_crit
 from halo.physics.dark import CoreNFW
 from halo.physics.jfactor import log10_j
-from halo.results.derived import derive, quantiles
+from halo.results.derived import derive
 
 SAT = {
     "name": "calibration",

@@ -75,7 +75,7 @@ def test_bridge_agrees_with_nested_sampling_on_a_jeans_model():
     from halo.inputs.satellite import parse_satellite
     from halo.inputs.spec import load_spec
     from halo.mock.catalogue import make_mock
-    from halo.pipeline.fit import _latent_sites
+    from halo.pipeline.model_run import latent_sites
 
     sat = parse_satellite(
         {
@@ -95,7 +95,7 @@ def test_bridge_agrees_with_nested_sampling_on_a_jeans_model():
     model = make_model(
         load_spec("stars-only"), sat, make_fit_data(stars.v, stars.v_err, stars.radius_deg)
     )
-    sites = _latent_sites(model)
+    sites = latent_sites(model)
     mcmc = run_nuts(model, chains=2, warmup=500, draws=1500, seed=1, progress=False)
     bridge = log_evidence(model, mcmc.get_samples(), sites, chains=2, seed=2)
     log_z, err = nested_sampling_evidence(model, sites, nlive=300, seed=3)

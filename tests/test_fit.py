@@ -1,9 +1,9 @@
 """The main job on seeded mocks: recovery, the dark-vs-stars comparison, outputs and the CLI.
 
-Mocks are drawn from equilibrium distribution functions (Eddington inversion, halo.mock.catalogue), an
-independent route from the Jeans equations the fit uses, so the tests are not circular.
-Sampler settings are reduced (2 chains x 400 + 400) to keep the suite fast; the full-size
-calibration lives in tests/test_calibration.py (opt-in, --run-slow).
+Mocks are drawn from equilibrium distribution functions (Eddington inversion,
+halo.mock.catalogue), an independent route from the Jeans equations the fit uses, so the tests are
+not circular. Sampler settings are reduced (2 chains x 400 + 400) to keep the suite fast; the
+full-size calibration lives in tests/test_calibration.py (opt-in, --run-slow).
 """
 
 import json
@@ -20,7 +20,8 @@ from halo.mock.catalogue import make_mock
 from halo.physics.cosmology import rho_crit
 from halo.physics.dark import CoreNFW
 from halo.physics.jfactor import log10_j
-from halo.pipeline.fit import FitSettings, fit, verdict
+from halo.pipeline.fit import FitSettings, fit
+from halo.results.comparison import verdict
 
 DWARF = {
     "name": "Test dwarf",

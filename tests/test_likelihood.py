@@ -1,4 +1,5 @@
-"""The per-star likelihood pieces (halo.inference.likelihood) against closed forms and brute force."""
+"""The per-star likelihood pieces (halo.inference.likelihood) against closed forms and brute
+force."""
 
 import jax
 import jax.numpy as jnp
@@ -10,7 +11,6 @@ from scipy import integrate, stats
 from halo.core.errors import InputError
 from halo.inference.likelihood import (
     PerStarLikelihood,
-    dispersion_resolution,
     epoch_terms,
     foreground_log_density,
     gaussian_mixture_em,
@@ -18,12 +18,13 @@ from halo.inference.likelihood import (
     spatial_log_prior,
 )
 from halo.inference.model import Foreground, make_fit_data, make_model
+from halo.inference.resolution import dispersion_resolution
 from halo.inputs.catalogue import stars_from_table
 from halo.inputs.satellite import parse_satellite
 from halo.inputs.spec import load_spec, parse_spec
 from halo.physics.binaries import BinaryPopulation, load_mixture, los_velocity, sample_orbits
 from halo.physics.light import Plummer
-from halo.pipeline.fit import foreground_decision
+from halo.pipeline.settings import foreground_decision
 
 jax.config.update("jax_enable_x64", True)
 

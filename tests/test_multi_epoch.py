@@ -1,10 +1,10 @@
 """Two epochs a year apart: the joint multi-epoch likelihood picks out the binaries.
 
 Mock: the stars-only cluster of test_binary_likelihood (no dark matter, dispersion ~0.2 km/s),
-50% binaries, each binary's orbit drawn orbit by orbit (halo.physics.binaries.sample_orbits: Raghavan et
-al. 2010, ApJS 190, 1 periods; Kepler orbits) and evaluated at both epochs, errors 0.3-0.6 km/s.
-The likelihood never sees these orbits: it uses an independent Monte Carlo (other seed) and a
-mixture compression. Binaries whose velocity changed by far more than the errors must be
+50% binaries, each binary's orbit drawn orbit by orbit (halo.physics.binaries.sample_orbits:
+Raghavan et al. 2010, ApJS 190, 1 periods; Kepler orbits) and evaluated at both epochs, errors
+0.3-0.6 km/s. The likelihood never sees these orbits: it uses an independent Monte Carlo (other
+seed) and a mixture compression. Binaries whose velocity changed by far more than the errors must be
 recognised (Minor et al. 2010, ApJ 721, 1142, argue multi-epoch data do exactly this [memory]).
 """
 

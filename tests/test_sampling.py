@@ -10,7 +10,7 @@ import numpyro
 import numpyro.distributions as dist
 
 from halo.inference.sampling import run_nuts
-from halo.pipeline.fit import _warm_init
+from halo.pipeline.warm_start import warm_init
 
 COV = np.array([[100.0, 50.0], [50.0, 25.01]])
 
@@ -39,7 +39,7 @@ def test_progress_bar_counts_every_iteration_and_changes_nothing(capsys):
 def test_warm_start_keeps_the_earlier_posterior_as_mass_matrix():
     cold = run_nuts(correlated_model, chains=2, warmup=500, draws=1000, seed=2, progress=False)
     prev = {k: np.asarray(v) for k, v in cold.get_samples().items()}
-    init, inv_mass = _warm_init(correlated_model, ["b_first", "a_second"], prev, 2, seed=4)
+    init, inv_mass = warm_init(correlated_model, ["b_first", "a_second"], prev, 2, seed=4)
     # sorted site order: a_second, b_first
     ref = COV[::-1, ::-1]
     np.testing.assert_allclose(inv_mass, ref, rtol=0.25)

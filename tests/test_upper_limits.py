@@ -1,8 +1,8 @@
 """Data that cannot resolve the dispersion: the run says so and reports upper limits.
 
-Mock: a stars-only cluster (dispersion ~0.3 km/s, halo.mock.catalogue distribution function) measured with
-2-3 km/s errors, 40 stars: the dispersion cannot be told from zero. Fitted through the command
-line with both likelihood parts switched off, which must be recorded.
+Mock: a stars-only cluster (dispersion ~0.3 km/s, halo.mock.catalogue distribution function)
+measured with 2-3 km/s errors, 40 stars: the dispersion cannot be told from zero. Fitted through the
+command line with both likelihood parts switched off, which must be recorded.
 """
 
 import json

@@ -22,6 +22,8 @@ import dataclasses
 
 import numpy as np
 
+from halo.core.batching import map_draws
+
 __all__ = ["EvidenceResult", "bridge_sampling", "unconstrained_draws", "log_evidence"]
 
 
@@ -117,25 +119,20 @@ def _ess(x):
     return float(min(x.size, np.asarray(az.ess(x[None] if x.ndim == 1 else x))))
 
 
-def unconstrained_draws(model, samples, site_names):
+def unconstrained_draws(model, samples, site_names, batch=1000):
     """Unconstrained values of the latent ``site_names`` for constrained ``samples``.
 
     Returns (array (n, dim), list of (name, size)); ``samples`` is a dict of arrays whose first
     axis runs over draws (chain-major).
     """
-    import jax
-    import jax.numpy as jnp
     from numpyro.infer.util import unconstrain_fn
 
     def one(params):
         return unconstrain_fn(model, (), {}, params)
 
-    sub = {k: jnp.asarray(samples[k]) for k in site_names}
-    z = jax.jit(jax.vmap(one))(sub)
+    z = map_draws(one, {k: np.asarray(samples[k]) for k in site_names}, batch=batch)
     layout = [(k, int(np.prod(np.shape(z[k])[1:]) or 1)) for k in site_names]
-    flat = np.concatenate(
-        [np.asarray(z[k]).reshape(len(np.asarray(z[k])), -1) for k in site_names], axis=1
-    )
+    flat = np.concatenate([z[k].reshape(len(z[k]), -1) for k in site_names], axis=1)
     return flat, layout
 
 
@@ -147,7 +144,6 @@ def log_evidence(model, samples, site_names, *, chains, seed=0, progress=False, 
     import sys
 
     import jax
-    import jax.numpy as jnp
     from numpyro.infer.util import potential_energy
     from tqdm.auto import tqdm
 
@@ -160,10 +156,10 @@ def log_evidence(model, samples, site_names, *, chains, seed=0, progress=False, 
             i += size
         return out
 
-    @jax.jit
-    def log_q_batch(xs):
-        return jax.vmap(lambda x: -potential_energy(model, (), {}, unflatten(x)))(xs)
+    def one(x):
+        return -potential_energy(model, (), {}, unflatten(x))
 
+    compiled = jax.jit(jax.vmap(one))  # one compilation for the posterior and proposal draws
     bar = tqdm(
         total=2 * len(flat) - len(flat) // 2,
         desc="evidence",
@@ -174,15 +170,7 @@ def log_evidence(model, samples, site_names, *, chains, seed=0, progress=False, 
     )
 
     def log_q(xs):
-        out = []
-        for k in range(0, len(xs), batch):
-            bar.update(min(batch, len(xs) - k))
-            chunk = np.asarray(xs[k : k + batch])
-            pad = batch - len(chunk)
-            if pad:
-                chunk = np.concatenate([chunk, np.repeat(chunk[-1:], pad, axis=0)])
-            out.append(np.asarray(log_q_batch(jnp.asarray(chunk)))[: batch - pad])
-        return np.concatenate(out)
+        return map_draws(one, xs, batch=batch, on_chunk=bar.update, compiled=compiled)
 
     try:
         return bridge_sampling(log_q, flat, seed=seed, chains=chains)

@@ -19,8 +19,9 @@ Binary member
 
         L_binary = < C_i(v - b) N(vbar - bbar | v_sys, sigma^2 + 1/W) >_orbits.
 
-    This is evaluated once per star, before sampling, by Monte Carlo over ``n_orbits`` orbits from
-    :func:`halo.physics.binaries.sample_orbits` (the velocity changes are data, independent of the model):
+    This is evaluated once per star, before sampling, by Monte Carlo over ``n_orbits`` orbits
+    from :func:`halo.physics.binaries.sample_orbits` (the velocity changes are data, independent
+    of the model):
     ln C1_i = ln <C_i(v - b)> and the distribution of the binary's mean offset bbar given the
     observed changes, with weights C_i(v - b) / sum C_i(v - b), is resampled and fitted with a
     K-component Gaussian mixture (free weights w_ik, means m_ik and widths s_ik, EM). In the
@@ -61,6 +62,7 @@ from jax.scipy.special import logsumexp
 from numpyro import distributions as dist
 from numpyro.distributions import constraints
 
+from halo.core.vocabulary import DEFAULT_N_ORBITS
 from halo.physics.binaries import BinaryPopulation, los_velocity, sample_orbits
 
 __all__ = [
@@ -71,11 +73,9 @@ __all__ = [
     "foreground_log_density",
     "spatial_log_prior",
     "PerStarLikelihood",
-    "dispersion_resolution",
-    "DEFAULT_N_ORBITS",
+    "single_log_term",
 ]
 
-DEFAULT_N_ORBITS = 20_000
 DEFAULT_ORBIT_SEED = 20101
 
 
@@ -265,14 +265,21 @@ def _log_normal(x, mu, var):
     return -0.5 * (x - mu) ** 2 / var - 0.5 * jnp.log(2 * jnp.pi * var)
 
 
+def single_log_term(v, var, v_sys, log_c0):
+    """ln L_single per star: ln C_i + ln N(vbar | v_sys, var) (pure JAX; see the module notes)."""
+    return log_c0 + _log_normal(v, v_sys, var)
+
+
 def member_log_terms(v, var, v_sys, log_c0, log_c1, log_w, scales, loc=0.0):
-    """(ln L_single, ln L_binary) per star (pure JAX; see the module notes).
+    """(ln L_single, ln L_binary) per star (pure JAX; see the module notes): the one Gaussian
+    mixture of the binary likelihood, used by the model, the dispersion-resolution check and the
+    tests.
 
     ``var`` = sigma_los^2 + 1/W per star; ``log_w`` (n, K) per-star log mixture weights;
     ``scales`` (K,) or (n, K) and ``loc`` (scalar or (n, K)) the binary mean-offset mixture
     [km/s].
     """
-    single = log_c0 + _log_normal(v, v_sys, var)
+    single = single_log_term(v, var, v_sys, log_c0)
     tot = var[:, None] + jnp.asarray(scales) ** 2
     binary = log_c1 + logsumexp(log_w + _log_normal(v[:, None] - loc, v_sys, tot), axis=-1)
     return single, binary
@@ -301,7 +308,8 @@ class PerStarLikelihood(dist.Distribution):
     """A distribution whose log_prob is a precomputed per-star log-likelihood vector.
 
     Lets the observed site carry an arbitrary mixture likelihood while numpyro and arviz still see
-    the pointwise values (for LOO). ``sample`` is not supported (mocks come from halo.mock.catalogue).
+    the pointwise values (for LOO). ``sample`` is not supported (mocks come from
+    halo.mock.catalogue).
     """
 
     support = constraints.real
@@ -315,83 +323,3 @@ class PerStarLikelihood(dist.Distribution):
 
     def log_prob(self, value):
         return self.log_lik
-
-
-def dispersion_resolution(
-    v,
-    v_err,
-    v_sys,
-    weights=None,
-    binaries=None,
-    epochs=None,
-    fraction_range=(0.0, 1.0),
-    n_grid=801,
-    n_fraction=101,
-):
-    """Is a (constant) line-of-sight dispersion resolved by the data?
-
-    The member likelihood of the module notes with sigma_los constant, on a grid of sigma, at a
-    plugged-in systemic velocity (a fit's posterior median), each star's log-likelihood weighted
-    by its membership probability ``weights``; with ``binaries`` the binary fraction is
-    marginalised over its uniform prior on ``fraction_range`` (``n_fraction`` grid points).
-
-    Returns a dict: ``resolved`` (2 [ln L(sigma_hat) - ln L(0)] >= 4, i.e. sigma = 0 excluded at
-    about 2 sigma by the likelihood-ratio test, Wilks 1938 [common practice]), ``two_delta_ln_l``,
-    and from the posterior with a uniform prior in sigma on the grid: ``sigma_median_kms``,
-    ``sigma_p16_kms``, ``sigma_p84_kms``, ``sigma_upper95_kms`` (the one-sided 95% upper limit).
-    """
-    from scipy.special import logsumexp as np_logsumexp
-
-    v = np.asarray(v, dtype=float)
-    e2 = np.asarray(v_err, dtype=float) ** 2
-    n = len(v)
-    q = np.ones(n) if weights is None else np.asarray(weights, dtype=float)
-    mean = np.sum(q * v) / np.sum(q)
-    spread = np.sqrt(np.sum(q * (v - mean) ** 2) / np.sum(q))
-    grid = np.linspace(0.0, max(5.0, 3.0 * spread), n_grid)
-    log_c0 = np.zeros(n) if epochs is None else np.asarray(epochs.log_c0)
-    log_c1 = np.zeros(n) if epochs is None else np.asarray(epochs.log_c1)
-    if binaries is not None:
-        if epochs is None:
-            log_w = np.tile(np.log(np.maximum(binaries.weights, 1e-300)), (n, 1))
-            scales = np.tile(np.asarray(binaries.scales, dtype=float), (n, 1))
-            loc = np.zeros_like(scales)
-        else:
-            log_w, scales, loc = (np.asarray(a) for a in (epochs.log_w, epochs.scale, epochs.loc))
-        lo, hi = fraction_range
-        fr = lo + (hi - lo) * (np.arange(n_fraction) + 0.5) / n_fraction
-    ll = np.empty(n_grid)
-    for k, s in enumerate(grid):
-        var = s**2 + e2
-        single = log_c0 - 0.5 * (v - v_sys) ** 2 / var - 0.5 * np.log(2 * np.pi * var)
-        if binaries is None:
-            ll[k] = np.sum(q * single)
-            continue
-        tot = var[:, None] + scales**2
-        d2 = (v[:, None] - loc - v_sys) ** 2
-        binary = log_c1 + np_logsumexp(
-            log_w - 0.5 * d2 / tot - 0.5 * np.log(2 * np.pi * tot), axis=1
-        )
-        per = np.logaddexp(
-            np.log1p(-fr)[:, None] + single[None, :], np.log(fr)[:, None] + binary[None, :]
-        )
-        ll[k] = np_logsumexp(per @ q) - np.log(n_fraction)
-    two_dl = float(2.0 * (ll.max() - ll[0]))
-    post = np.exp(ll - ll.max())
-    cdf = np.concatenate([[0.0], np.cumsum(0.5 * (post[1:] + post[:-1]) * np.diff(grid))])
-    cdf /= cdf[-1]
-
-    def at(p):
-        return float(np.interp(p, cdf, grid))
-
-    return {
-        "resolved": bool(two_dl >= 4.0),
-        "two_delta_ln_l": two_dl,
-        "sigma_hat_kms": float(grid[np.argmax(ll)]),
-        "sigma_median_kms": at(0.5),
-        "sigma_p16_kms": at(0.16),
-        "sigma_p84_kms": at(0.84),
-        "sigma_upper95_kms": at(0.95),
-        "method": "constant sigma_los on a grid at the posterior median v_sys, binary fraction "
-        "marginalised, members weighted by their membership probability",
-    }

@@ -36,8 +36,8 @@ def predict(spec, satellite, values, radii_pc=None, angles_deg=None, orders=DEFA
     Parameters
     ----------
     spec : :class:`halo.inputs.spec.ModelSpec`
-    satellite : :class:`halo.inputs.satellite.Satellite` (distance, half-light radius, light profile,
-        default stellar mass)
+    satellite : :class:`halo.inputs.satellite.Satellite` (distance, half-light radius, light
+        profile, default stellar mass)
     values : dict of parameter name -> float (see ``halo models``); ``stellar_mass`` [Msun]
         defaults to the satellite file's value
     radii_pc : projected radii for sigma_los and 3D radii for the enclosed mass [pc]

@@ -13,27 +13,19 @@ Per draw (vectorised over draws with ``jax.vmap``):
 - sigma_los at a set of radii (for the dispersion-profile figure).
 """
 
-import jax
 import jax.numpy as jnp
 import numpy as np
 
+from halo.core.batching import map_draws
 from halo.core.constants import DEG
-from halo.core.quantiles import quantiles
+from halo.core.vocabulary import STANDARD_ANGLES, luminosity_v
 from halo.inputs.build import build_anisotropy, build_mass_model
 from halo.physics.cosmology import rho_crit
 from halo.physics.jeans import FAST, sigma_los
 from halo.physics.jfactor import log10_d, log10_j
 
-__all__ = [
-    "STANDARD_ANGLES",
-    "CURVE_ANGLES",
-    "PROFILE_RADII_PC",
-    "parameter_values",
-    "derive",
-    "quantiles",
-]
+__all__ = ["CURVE_ANGLES", "PROFILE_RADII_PC", "parameter_values", "derive"]
 
-STANDARD_ANGLES = (0.1, 0.2, 0.5)
 PROFILE_RADII_PC = (5.0, 10.0, 20.0, 50.0, 100.0, 200.0, 500.0, 1000.0)
 
 
@@ -65,7 +57,6 @@ def derive(spec, satellite, samples, *, sigma_angles_deg, rng=None, batch=1000):
     values = parameter_values(spec, samples)
     distance = np.asarray(samples["distance"]).ravel()
     r_e = np.asarray(samples["r_e_kpc"]).ravel()
-    n = len(distance)
     radii = jnp.asarray(PROFILE_RADII_PC) * 1e-3
     sig_th = jnp.tan(jnp.asarray(sigma_angles_deg) * DEG)
     angles = jnp.asarray(STANDARD_ANGLES)
@@ -101,18 +92,8 @@ def derive(spec, satellite, samples, *, sigma_angles_deg, rng=None, batch=1000):
             )
         return out
 
-    fn = jax.jit(jax.vmap(one))
-    chunks = []
-    for k in range(0, n, batch):
-        sl = slice(k, min(n, k + batch))
-        vals = {key: jnp.asarray(v[sl]) for key, v in values.items()}
-        chunks.append(
-            jax.tree_util.tree_map(
-                np.asarray, fn(vals, jnp.asarray(distance[sl]), jnp.asarray(r_e[sl]))
-            )
-        )
-    res = {key: np.concatenate([c[key] for c in chunks]) for key in chunks[0]}
-    lum = _luminosity_draws(satellite, samples, n, rng)
+    res = map_draws(one, values, distance, r_e, batch=batch)
+    lum = _luminosity_draws(satellite, samples, len(distance), rng)
     if lum is not None:
         res["ml_half_v"] = res["m_half_msun"] / (0.5 * lum)
     return res
@@ -129,4 +110,4 @@ def _luminosity_draws(satellite, samples, n, rng):
         )
     else:
         return None
-    return 10.0 ** (-0.4 * (mag - 4.83))
+    return luminosity_v(mag)

@@ -1,0 +1,149 @@
+"""One model of a fit: sample it (fresh or warm-started) or reuse an earlier posterior, then its
+evidence, LOO, per-star probabilities and derived quantities; writes ``<model>/posterior.nc``."""
+
+import shutil
+import time
+import warnings
+from types import SimpleNamespace
+
+import numpy as np
+
+from halo.core.fileio import atomic_path
+from halo.inference.evidence import log_evidence
+from halo.inference.model import Foreground, make_model
+from halo.inference.sampling import diagnostics, run_nuts
+from halo.pipeline.settings import say
+from halo.pipeline.warm_start import warm_start
+from halo.products.rundir import load_posterior, posterior_path, read_summary
+from halo.results.derived import derive
+from halo.results.members import star_probabilities
+
+__all__ = ["latent_sites", "run_model"]
+
+
+def latent_sites(model):
+    """Names of the model's latent (unobserved) sample sites, in model order."""
+    from numpyro import handlers
+
+    tr = handlers.trace(handlers.seed(model, 0)).get_trace()
+    return [k for k, s in tr.items() if s["type"] == "sample" and not s.get("is_observed", False)]
+
+
+def _reuse(name, reuse, out_dir, settings):
+    """(idata, samples, evidence) of model ``name`` from the earlier folder ``reuse``; its
+    posterior file is copied into ``out_dir``."""
+    say(f"[{name}] unchanged inputs: reusing the posterior of {reuse}", settings)
+    idata, samples = load_posterior(reuse, name)
+    prev = read_summary(reuse)["models"][name]
+    ev = SimpleNamespace(**{k: prev["evidence"][k] for k in ("log_z", "log_z_err")})
+    with atomic_path(posterior_path(out_dir, name)) as tmp:
+        shutil.copyfile(posterior_path(reuse, name), tmp)
+    return idata, samples, ev
+
+
+def _sample(name, model, latent, settings, start):
+    """(idata, samples) of NUTS on ``model`` started as ``start`` says."""
+    import arviz as az
+
+    say(
+        f"[{name}] sampling: {settings.chains} chains x {start.warmup} warmup + "
+        f"{settings.draws} draws",
+        settings,
+    )
+    mcmc = run_nuts(
+        model,
+        chains=settings.chains,
+        warmup=start.warmup,
+        draws=settings.draws,
+        seed=settings.seed,
+        progress=settings.progress,
+        init_params=start.init,
+        inverse_mass_matrix=start.inverse_mass_matrix,
+        adapt_mass_matrix=start.adapt_mass_matrix,
+    )
+    samples = {k: np.asarray(v) for k, v in mcmc.get_samples().items()}
+    return az.from_numpyro(mcmc, log_likelihood=True), samples
+
+
+def _loo(idata):
+    """(PSIS-LOO, the first sentence of each warning arviz gave)."""
+    import arviz as az
+
+    with warnings.catch_warnings(record=True) as caught:
+        # arviz warns about large Pareto k; the summary reports them per model instead
+        warnings.simplefilter("always")
+        loo = az.loo(idata, pointwise=True)
+    return loo, [str(w.message).split(".")[0] for w in caught]
+
+
+def _posterior(name, model, latent, ctx, reuse, warm):
+    """(idata, samples, evidence or None, warm-start record, sampling time) of one model."""
+    settings = ctx["settings"]
+    if reuse is not None:
+        idata, samples, ev = _reuse(name, reuse, ctx["out_dir"], settings)
+        return idata, samples, ev, None, 0.0
+    t0 = time.perf_counter()
+    start = warm_start(warm, name, model, latent, settings, ctx["likes"].foreground_on)
+    idata, samples = _sample(name, model, latent, settings, start)
+    return idata, samples, None, start.record, time.perf_counter() - t0
+
+
+def run_model(name, spec, ctx, reuse=None, warm=None):
+    """Fit one model (or, with ``reuse`` = an earlier output folder whose inputs were identical,
+    take its posterior and evidence); ``warm`` = an earlier folder to start the chains from.
+
+    ``ctx``: dict with ``satellite``, ``likes`` (:class:`halo.pipeline.likelihoods.Likelihoods`),
+    ``settings``, ``sigma_angles`` and ``out_dir``. Returns the model's result dict.
+    """
+    satellite, settings = ctx["satellite"], ctx["settings"]
+    binaries, data, epochs = ctx["likes"].get(spec)
+    foreground = Foreground(satellite.foreground) if ctx["likes"].foreground_on else None
+    model = make_model(spec, satellite, data, binaries=binaries, foreground=foreground)
+    latent = latent_sites(model)
+    t0 = time.perf_counter()
+    idata, samples, ev, start, t_sample = _posterior(name, model, latent, ctx, reuse, warm)
+    diag = diagnostics(idata, latent)
+    if not diag.converged:
+        say(f"[{name}] WARNING: NOT CONVERGED: {'; '.join(diag.problems())}", settings)
+    if ev is None:
+        say(f"[{name}] evidence (bridge sampling)", settings)
+        ev = log_evidence(
+            model,
+            samples,
+            latent,
+            chains=settings.chains,
+            seed=settings.seed,
+            progress=settings.progress,
+        )
+    loo, loo_warnings = _loo(idata)
+    probs = {"member_prob": None, "binary_prob": None}
+    if binaries is not None or foreground is not None:
+        terms_model = make_model(
+            spec, satellite, data, binaries=binaries, foreground=foreground, keep_terms=True
+        )
+        probs = star_probabilities(terms_model, samples, latent)
+    say(f"[{name}] derived quantities", settings)
+    rng = np.random.default_rng(settings.seed)
+    der = derive(spec, satellite, samples, sigma_angles_deg=ctx["sigma_angles"], rng=rng)
+    if reuse is None:
+        with atomic_path(posterior_path(ctx["out_dir"], name)) as tmp:
+            idata.to_netcdf(str(tmp))
+    return {
+        "reused_from": None if reuse is None else str(reuse),
+        "warm_start": start,
+        "spec": spec,
+        "samples": samples,
+        "latent": latent,
+        "diagnostics": diag,
+        "evidence": ev,
+        "loo": loo,
+        "derived": der,
+        "time_s": time.perf_counter() - t0,
+        "sampling_time_s": t_sample,
+        "loo_warnings": loo_warnings,
+        "binary_prob": probs["binary_prob"],
+        "member_prob": probs["member_prob"],
+        "data": data,
+        "binaries": binaries,
+        "epochs": epochs,
+    }

@@ -1,0 +1,83 @@
+"""What a fit run does: its settings, whether the foreground is modelled, and progress lines."""
+
+import dataclasses
+import sys
+
+import numpy as np
+
+from halo.core.vocabulary import DEFAULT_N_ORBITS
+
+__all__ = [
+    "FitSettings",
+    "FOREGROUND_CLIP",
+    "FOREGROUND_MIN_OFFSET_KMS",
+    "foreground_decision",
+    "foreground_setting",
+    "say",
+]
+
+
+@dataclasses.dataclass(frozen=True)
+class FitSettings:
+    chains: int = 4
+    warmup: int = 1000
+    draws: int = 1000
+    seed: int = 0
+    progress: bool = True
+    binaries: bool = True
+    foreground: bool | str = "auto"  # True, False or "auto" (see foreground_decision)
+    n_orbits: int = DEFAULT_N_ORBITS  # Monte Carlo orbits per multi-epoch star
+
+    def as_dict(self):
+        keys = ("chains", "warmup", "draws", "seed", "binaries", "foreground")
+        return {k: getattr(self, k) for k in keys}
+
+
+#: a star further than this many robust widths from the median velocity is taken as a sign that
+#: the catalogue reaches beyond the members (common practice: 5 sigma clipping)
+FOREGROUND_CLIP = 5.0
+#: ... and further than this [km/s], so that binaries of a cold system do not trigger it
+FOREGROUND_MIN_OFFSET_KMS = 25.0
+
+
+def foreground_decision(stars):
+    """(on, reason): whether the catalogue reaches beyond the members.
+
+    On when the catalogue carries a ``member_prob`` column with values below 1, or when any star
+    lies more than FOREGROUND_CLIP robust widths sqrt(s^2 + err^2) (s = 1.4826 MAD of the
+    velocities, common practice) and more than FOREGROUND_MIN_OFFSET_KMS from the median.
+    """
+    if stars.member_prob is not None and np.any(np.asarray(stars.member_prob) < 1):
+        return True, "the catalogue's member_prob column has values below 1"
+    v = np.asarray(stars.v, dtype=float)
+    med = np.median(v)
+    s = 1.4826 * np.median(np.abs(v - med))
+    off = np.abs(v - med)
+    far = (off > FOREGROUND_CLIP * np.sqrt(s**2 + np.asarray(stars.v_err) ** 2)) & (
+        off > FOREGROUND_MIN_OFFSET_KMS
+    )
+    if far.any():
+        return True, (
+            f"{int(far.sum())} star(s) lie more than {FOREGROUND_CLIP:g} robust widths and "
+            f"{FOREGROUND_MIN_OFFSET_KMS:g} km/s from the median velocity"
+        )
+    return False, (
+        "every star lies within "
+        f"{FOREGROUND_CLIP:g} robust widths or {FOREGROUND_MIN_OFFSET_KMS:g} km/s of the median "
+        "velocity and there is no member_prob column: the catalogue looks like members only"
+    )
+
+
+def foreground_setting(stars, settings):
+    """(on, reason) of the run: the user's choice, or :func:`foreground_decision` for "auto"."""
+    if settings.foreground == "auto":
+        return foreground_decision(stars)
+    if settings.foreground:
+        return True, "switched on by the user"
+    return False, "switched off by the user"
+
+
+def say(msg, settings):
+    """A progress line on stderr (unless the settings ask for quiet)."""
+    if settings.progress:
+        print(msg, file=sys.stderr, flush=True)

@@ -1,0 +1,113 @@
+"""Per-star results: posterior probabilities of membership and of being a binary, and the
+members table (``members.ecsv``)."""
+
+import numpy as np
+
+from halo.core.batching import map_draws
+from halo.core.fileio import write_ecsv
+from halo.core.vocabulary import STARS_ONLY
+
+__all__ = ["star_probabilities", "members_table", "write_members"]
+
+#: the per-star terms recorded by a model built with ``keep_terms=True``
+_TERM_SITES = (
+    "ll_single",
+    "ll_binary",
+    "ll_member",
+    "ll_foreground",
+    "log_prior_member",
+    "log_prior_non",
+)
+
+
+def _probabilities_of_draw(terms_model):
+    """The function of one draw's parameters -> its per-star p_binary and p_member."""
+    import jax.numpy as jnp
+    from numpyro import handlers
+
+    def one(params):
+        tr = handlers.trace(handlers.substitute(handlers.seed(terms_model, 0), data=params))
+        t = tr.get_trace()
+        out = {k: t[k]["value"] for k in _TERM_SITES if k in t}
+        if "ll_binary" in out:
+            fb = params["f_binary"]
+            a = jnp.log1p(-fb) + out["ll_single"]
+            b = jnp.log(fb) + out["ll_binary"]
+            out["p_binary"] = jnp.exp(b - jnp.logaddexp(a, b))
+        if "ll_foreground" in out:
+            a = out["log_prior_member"] + out["ll_member"]
+            b = out["log_prior_non"] + out["ll_foreground"]
+            out["p_member"] = jnp.exp(a - jnp.logaddexp(a, b))
+        return {k: out[k] for k in ("p_binary", "p_member") if k in out}
+
+    return one
+
+
+def star_probabilities(terms_model, samples, latent, batch=256):
+    """Posterior mean per-star probabilities of membership and of being a binary.
+
+    Per draw, with the per-star terms of :mod:`halo.inference.likelihood`:
+    member: p L_member / (p L_member + (1 - p) L_fg); binary (given membership):
+    f_b L_binary / ((1 - f_b) L_single + f_b L_binary). Averaged over the draws. Returns a dict
+    with ``member_prob`` and ``binary_prob`` (None when the part is not modelled).
+    """
+    sub = {key: np.asarray(samples[key]) for key in latent}
+    per_draw = map_draws(_probabilities_of_draw(terms_model), sub, batch=batch)
+    n = len(next(iter(samples.values())))
+    means = {}
+    for key, val in per_draw.items():
+        # summed chunk by chunk of ``batch`` draws, then over chunks (the summation order of the
+        # published numbers)
+        total = 0.0
+        for k in range(0, n, batch):
+            total = total + val[k : k + batch].sum(axis=0)
+        means[key] = total / n
+    return {"member_prob": means.get("p_member"), "binary_prob": means.get("p_binary")}
+
+
+_MEMBERS_NOTE = (
+    "member_prob: posterior membership probability under model '{ref}' (1 when the "
+    "foreground is not modelled, or the catalogue's member_prob when given and not modelled); "
+    "member_prob_prior: the catalogue's column; binary_prob: posterior probability of being a "
+    "binary if a member (NaN when binaries are not modelled); radius_pc: circularised, at the "
+    "satellite file's distance; v_mean_kms: inverse-variance weighted mean over the epochs; "
+    "binary_mc_ess: effective number of Monte Carlo orbits behind the multi-epoch binary term"
+)
+
+
+def members_table(stars, results, names, satellite):
+    """Per star id: member_prob, binary_prob, radius used and epoch count (astropy Table), under
+    the first dark model (stars-only when there is none)."""
+    from astropy.table import Table
+
+    dark = [n for n in names if n != STARS_ONLY]
+    ref = dark[0] if dark else STARS_ONLY
+    res = results[ref]
+    t = Table()
+    t["id"] = np.asarray(stars.id).astype(str)
+    mp = res["member_prob"]
+    if mp is None:
+        mp = np.ones(stars.n_stars) if stars.member_prob is None else stars.member_prob
+    t["member_prob"] = np.asarray(mp, dtype=float)
+    if stars.member_prob is not None:
+        t["member_prob_prior"] = np.asarray(stars.member_prob, dtype=float)
+    bp = res["binary_prob"]
+    t["binary_prob"] = np.full(stars.n_stars, np.nan) if bp is None else bp
+    t["radius_deg"] = np.asarray(stars.radius_deg)
+    t["radius_pc"] = np.tan(np.radians(np.asarray(stars.radius_deg))) * satellite.distance_kpc * 1e3
+    t["n_epochs"] = np.asarray(stars.n_epochs)
+    t["v_mean_kms"] = np.asarray(stars.v)
+    t["v_mean_err_kms"] = np.asarray(stars.v_err)
+    if res.get("epochs") is not None:
+        t["binary_mc_ess"] = np.asarray(res["epochs"].ess)
+    for n in names:
+        if n != ref and results[n]["member_prob"] is not None:
+            t[f"member_prob_{n}"] = results[n]["member_prob"]
+    t.meta["model"] = ref
+    t.meta["note"] = _MEMBERS_NOTE.format(ref=ref)
+    return t
+
+
+def write_members(path, stars, results, names, satellite):
+    """members.ecsv (see :func:`members_table`), written atomically."""
+    write_ecsv(path, members_table(stars, results, names, satellite))
