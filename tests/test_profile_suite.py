@@ -1,9 +1,11 @@
 """One suite that every dark profile, light profile and mass component must pass.
 
-Parametrised over ``halo.physics.dark.DARK_PROFILES``, ``halo.physics.light.LIGHT_PROFILES`` and the mass
-components of ``halo.physics.mass`` (``Stars``, ``MassModel``) built from them. Every registered profile
-needs an entry in the example tables below: ``test_every_registered_profile_has_examples`` fails
-otherwise, so a new profile cannot be added without being tested here.
+Parametrised over ``halo.physics.dark.DARK_PROFILES``, ``halo.physics.light.LIGHT_PROFILES`` and
+the mass components of ``halo.physics.mass`` (``Stars``, ``MassModel``) built from them. Every
+registered profile needs an entry in the example tables of tests/profile_setup.py:
+``test_every_registered_profile_has_examples`` fails otherwise, so a new profile cannot be added
+without being tested here. The light profiles' own generic checks (Abel projection, half-light
+radii, from_r_half) are in tests/test_profile_suite_light.py, on the same table.
 
 Checks (references are independent of how the module computes each quantity):
 
@@ -22,6 +24,13 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 import pytest
+from profile_setup import (
+    DARK_EXAMPLES,
+    DARK_SHAPES,
+    LIGHT_EXAMPLES,
+    LIGHT_SHAPES,
+    MODEL_EXAMPLES,
+)
 from scipy import integrate
 
 from halo.physics.dark import DARK_PROFILES
@@ -29,36 +38,6 @@ from halo.physics.light import LIGHT_PROFILES
 from halo.physics.mass import MassModel, Stars
 
 # ------------------------------------------------------------------ example tables (kpc, Msun)
-
-#: dark profile name -> {example id: constructor keywords}. Truncated variants of every profile
-#: are also covered by tests/test_dark.py::test_truncation_and_centre.
-DARK_EXAMPLES = {
-    "nfw": {
-        "cusp": dict(rho_s=2.0e7, r_s=0.8),
-        "truncated": dict(rho_s=2.0e7, r_s=0.8, r_t=2.7),
-    },
-    "burkert": {"truncated": dict(rho_s=5.0e7, r_s=0.5, r_t=1.6)},
-    "core-nfw": {"partial": dict(rho_s=1.0e7, r_s=1.2, r_c=0.3, n=0.7)},
-    "zhao": {
-        "steep": dict(rho_s=1.0e7, r_s=0.9, alpha=2.0, beta=5.0, gamma=0.5),
-        "cuspy-truncated": dict(rho_s=3.0e6, r_s=1.1, alpha=0.7, beta=3.5, gamma=1.4, r_t=3.9),
-    },
-    "einasto": {"cdm": dict(rho_s=3.0e6, r_s=1.5, alpha=0.17)},
-}
-
-#: light profile name -> {example id: constructor keywords}; entries for names not (yet) in
-#: LIGHT_PROFILES are ignored, the registry test is what enforces coverage
-LIGHT_EXAMPLES = {
-    "plummer": {"a30pc": dict(a=0.03)},
-    "exponential": {"rd25pc": dict(r_d=0.025)},
-    "king": {"c10": dict(r_c=0.02, r_t=0.2)},
-}
-
-#: mass models (dark name, dark example, light name, light example): a halo plus stars
-MODEL_EXAMPLES = [
-    ("zhao", "steep", "plummer", "a30pc"),
-    ("nfw", "truncated", "plummer", "a30pc"),
-]
 
 #: radii in units of each case's scale (dark: r_s; light: R_e); none near a truncation radius
 RADII = np.array([1e-3, 1e-2, 0.1, 0.37, 1.0, 2.3, 6.0, 20.0, 100.0])
@@ -195,8 +174,10 @@ _ev = jax.jit(_evaluate, static_argnums=2)
 def test_every_registered_profile_has_examples():
     # adding a profile to a registry without an example here must break the build
     missing = [f"dark:{n}" for n in DARK_PROFILES if not DARK_EXAMPLES.get(n)]
+    missing += [f"dark shape:{n}" for n in DARK_PROFILES if n not in DARK_SHAPES]
     missing += [f"light:{n}" for n in LIGHT_PROFILES if not LIGHT_EXAMPLES.get(n)]
-    assert not missing, f"profiles without an entry in tests/test_profile_suite.py: {missing}"
+    missing += [f"light shape:{n}" for n in LIGHT_PROFILES if n not in LIGHT_SHAPES]
+    assert not missing, f"profiles without an entry in tests/profile_setup.py: {missing}"
     # and every example builds the class it is filed under
     for table, registry in ((DARK_EXAMPLES, DARK_PROFILES), (LIGHT_EXAMPLES, LIGHT_PROFILES)):
         for name in registry:
@@ -204,6 +185,26 @@ def test_every_registered_profile_has_examples():
                 assert isinstance(registry[name](**kw), registry[name])
     for d, dk, l, lk in MODEL_EXAMPLES:
         assert dk in DARK_EXAMPLES[d] and lk in LIGHT_EXAMPLES[l]
+
+
+def test_declared_parameters_match_the_constructors():
+    # what the inputs stage derives from a profile class must be a consistent declaration: every
+    # declared dark shape parameter is a constructor field (under its field name), those that may
+    # be left out have the constructor's default, and the checks name declared parameters only
+    for name, cls in DARK_PROFILES.items():
+        fields = {f.name: f for f in dataclasses.fields(cls)}
+        declared = set(cls.shape_parameters)
+        for s in cls.shape_parameters:
+            assert cls.field_names.get(s, s) in fields, (name, s)
+        for s, default in cls.optional.items():
+            assert s in declared and fields[cls.field_names.get(s, s)].default == default, (name, s)
+        assert set(cls.field_names) <= declared, name
+        assert set(cls.positive) <= declared and set(cls.unit_interval) <= declared, name
+        shape = {cls.field_names.get(k, k) for k in declared} | {"rho_s", "r_s"}
+        assert set(DARK_SHAPES[name]) <= shape, name
+    for name, cls in LIGHT_PROFILES.items():
+        assert set(cls.satellite_keys) == set(cls.shape_parameters), name
+        assert set(LIGHT_SHAPES[name]) == set(cls.shape_parameters), name
 
 
 # ------------------------------------------------------------------- cumulative from density
