@@ -26,6 +26,7 @@ K_UNIT_KMS = 212.908297
 #: (P/day)^(2/3).  Computed from astropy.constants; the test suite recomputes it.
 A_UNIT_RSUN = 4.2082783
 
+
 @dataclasses.dataclass(frozen=True)
 class BinaryPopulation:
     """Orbit population of binaries whose primary is the observed (red giant) star.
