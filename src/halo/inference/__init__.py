@@ -1,3 +1,3 @@
 """Stage 4, inference: the numpyro model, the per-star likelihood (epochs, binaries,
-foreground), NUTS sampling and diagnostics, the evidence.
+foreground), the dispersion-resolution check, NUTS sampling and diagnostics, the evidence.
 """
