@@ -21,7 +21,7 @@ FOUR_PI = 4.0 * math.pi
 
 
 class DarkProfile:
-    """Methods and declarations shared by every dark profile (fields ``rho_s``, ``r_s``, ``r_t``).
+    """What every dark profile shares (fields ``rho_s``, ``r_s``, shape fields, ``r_t``).
 
     A profile declares its shape parameters (those besides ``rho_s, r_s`` or ``m200, c200``) by
     the names that model specs and the command line use; the inputs stage derives its checks and
