@@ -2,8 +2,8 @@
 
 Run:  .venv/bin/python benchmarks/bench_rerun.py [--chains 4 --warmup 1000 --draws 1000]
 
-Mock: the demo satellite (halo.mock.catalogue, cored halo, distribution function), 110 stars with 30%
-binaries. Workspace A gets 100 stars and is fitted (nfw and stars-only, default likelihood:
+Mock: the demo satellite (halo.mock.catalogue, cored halo, distribution function), 110 stars with
+30% binaries. Workspace A gets 100 stars and is fitted (nfw and stars-only, default likelihood:
 binaries on, foreground automatic), then 10 more stars are added and `refit` runs again (warm
 start from the previous posterior, shorter warmup). Workspace B fits all 110 stars from scratch
 (the reference). A refit with nothing changed is timed too. Printed: wall times, ratios to the

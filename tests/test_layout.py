@@ -119,7 +119,6 @@ def _python_files():
                 yield path
 
 
-@pytest.mark.xfail(reason="the splits of the long files land file by file")
 def test_files_and_functions_stay_small():
     long_files, long_functions = [], []
     for path in _python_files():

@@ -41,6 +41,41 @@ def _logmeanexp(a):
     return m + np.log(np.mean(np.exp(a - m)))
 
 
+def _gaussian_proposal(fit):
+    """(draw(rng, n), log_g) of the Gaussian fitted to the first halves of the chains."""
+    dim = fit.shape[1]
+    mean = fit.mean(axis=0)
+    cov = np.atleast_2d(np.cov(fit, rowvar=False))
+    cov = cov + 1e-12 * np.eye(dim) * np.max(np.abs(np.diag(cov)))
+    chol = np.linalg.cholesky(cov)
+    logdet = 2.0 * np.sum(np.log(np.diag(chol)))
+
+    def log_g(x):
+        y = np.linalg.solve(chol, (x - mean).T)
+        return -0.5 * np.sum(y * y, axis=0) - 0.5 * dim * np.log(2 * np.pi) - 0.5 * logdet
+
+    def draw(rng, n):
+        return mean + rng.standard_normal((n, dim)) @ chol.T
+
+    return draw, log_g
+
+
+def _iterate(l1, l2, log_s1, log_s2, max_iter, tol):
+    """(ln(r / e^lstar), lstar, iterations) of the Meng & Wong (1996) fixed-point iteration."""
+    lstar = np.median(l1)
+    log_r = 0.0  # ln(r / exp(lstar))
+    iterations = max_iter
+    for it in range(1, max_iter + 1):
+        num = _logmeanexp((l2 - lstar) - np.logaddexp(log_s1 + l2 - lstar, log_s2 + log_r))
+        den = _logmeanexp(-np.logaddexp(log_s1 + l1 - lstar, log_s2 + log_r))
+        new = num - den
+        if abs(new - log_r) < tol:
+            log_r, iterations = new, it
+            break
+        log_r = new
+    return log_r, lstar, iterations
+
+
 def bridge_sampling(
     log_q, draws, *, seed=0, n_proposal=None, max_iter=1000, tol=1e-10, chains=1, progress=None
 ):
@@ -59,17 +94,8 @@ def bridge_sampling(
     post = by_chain[:, half:].reshape(-1, dim)
     n1 = post.shape[0]
     n2 = n1 if n_proposal is None else int(n_proposal)
-    mean = fit.mean(axis=0)
-    cov = np.atleast_2d(np.cov(fit, rowvar=False))
-    cov = cov + 1e-12 * np.eye(dim) * np.max(np.abs(np.diag(cov)))
-    chol = np.linalg.cholesky(cov)
-    logdet = 2.0 * np.sum(np.log(np.diag(chol)))
-
-    def log_g(x):
-        y = np.linalg.solve(chol, (x - mean).T)
-        return -0.5 * np.sum(y * y, axis=0) - 0.5 * dim * np.log(2 * np.pi) - 0.5 * logdet
-
-    prop = mean + rng.standard_normal((n2, dim)) @ chol.T
+    draw, log_g = _gaussian_proposal(fit)
+    prop = draw(rng, n2)
     if progress:
         progress("evidence: posterior draws")
     lq_post = np.asarray(log_q(post), dtype=float)
@@ -79,19 +105,9 @@ def bridge_sampling(
     l1 = lq_post - log_g(post)  # ln(q/g) at posterior draws
     l2 = lq_prop - log_g(prop)  # ln(q/g) at proposal draws
     l2 = np.where(np.isfinite(l2), l2, -np.inf)
-    lstar = np.median(l1)
     s1, s2 = n1 / (n1 + n2), n2 / (n1 + n2)
     log_s1, log_s2 = np.log(s1), np.log(s2)
-    log_r = 0.0  # ln(r / exp(lstar))
-    iterations = max_iter
-    for it in range(1, max_iter + 1):
-        num = _logmeanexp((l2 - lstar) - np.logaddexp(log_s1 + l2 - lstar, log_s2 + log_r))
-        den = _logmeanexp(-np.logaddexp(log_s1 + l1 - lstar, log_s2 + log_r))
-        new = num - den
-        if abs(new - log_r) < tol:
-            log_r, iterations = new, it
-            break
-        log_r = new
+    log_r, lstar, iterations = _iterate(l1, l2, log_s1, log_s2, max_iter, tol)
     log_z = log_r + lstar
     # relative mean-squared error (Fruhwirth-Schnatter 2004), in units of Z^2
     f1 = np.exp(

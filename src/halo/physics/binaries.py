@@ -11,17 +11,15 @@ systemic motion of the star in the satellite. This module provides
 - ``fit_mixture(pop, n, seed)`` / ``load_mixture()``: a scale mixture of zero-mean Gaussians,
   P_b(v) = sum_k w_k N(v | 0, s_k^2), fitted to the single-epoch velocity distribution and cached
   as package data (``halo/data/binary_mixture.json``);
-- ``log_convolved_density(v, mu, var, scales, weights)``: the analytic convolution of a Gaussian
-  with P_b, a pure JAX function for the velocity likelihood.
 
 Regenerate the cached mixture with ``python -m halo.physics.binaries --regenerate`` (options
 ``--n`` and ``--seed``; defaults reproduce the shipped file).
 
-The Monte Carlo is numpy precomputation (run once), not traced physics; only
-``log_convolved_density`` is meant for jit/grad. The population and its sample live in
-:mod:`halo.physics.binary_population`, the orbits in :mod:`halo.physics.binary_kepler` and the
-mixture in :mod:`halo.physics.binary_mixture`; this module gathers them and is the entry point
-that regenerates the shipped mixture.
+The Monte Carlo is numpy precomputation (run once), not traced physics (the likelihood's
+convolution of P_b with a Gaussian lives in :mod:`halo.inference.likelihood`). The population
+and its sample live in :mod:`halo.physics.binary_population`, the orbits in
+:mod:`halo.physics.binary_kepler` and the mixture in :mod:`halo.physics.binary_mixture`; this
+module gathers them and is the entry point that regenerates the shipped mixture.
 """
 
 import argparse
@@ -36,7 +34,6 @@ from halo.physics.binary_mixture import (
     default_scales,
     fit_mixture,
     load_mixture,
-    log_convolved_density,
 )
 from halo.physics.binary_population import (
     A_UNIT_RSUN,
@@ -57,7 +54,6 @@ __all__ = [
     "BinaryMixture",
     "fit_mixture",
     "load_mixture",
-    "log_convolved_density",
     "default_scales",
     "K_UNIT_KMS",
     "A_UNIT_RSUN",
