@@ -268,7 +268,11 @@ def _member_block(data, var, v_sys, log_c0, log_c1, b, keep_terms):
         if data.log_w is None
         else data.log_w
     )
-    single, binary = member_log_terms(data.v, var, v_sys, log_c0, log_c1, log_w, b.scales)
+    # each star's own binary mean-offset mixture (widths and means given its epochs) when the
+    # data carry one; the population's zero-mean scales otherwise (single-epoch data only)
+    scales = b.scales if data.bin_scale is None else data.bin_scale
+    loc = 0.0 if data.bin_loc is None else data.bin_loc
+    single, binary = member_log_terms(data.v, var, v_sys, log_c0, log_c1, log_w, scales, loc)
     lf, lf1 = jnp.log1p(-f_b), jnp.log(f_b)
     member = jnp.logaddexp(lf + single, lf1 + binary)
     consistency = jnp.logaddexp(lf + log_c0, lf1 + log_c1)
@@ -336,7 +340,8 @@ def make_model(
     the spatial prior with a member fraction ``f_member`` uniform in [0, 1].
 
     ``keep_terms``: record the per-star terms as deterministic sites (``ll_single``,
-    ``ll_binary``, ``ll_foreground``, ``log_prior_member``) for per-star probabilities.
+    ``ll_binary``, ``ll_foreground``, ``log_prior_member``) for per-star probabilities, and
+    ``var_member`` = sigma_los^2 + v_err^2 at each star.
     """
     rho_c = rho_crit()
     v_center = float(np.median(np.asarray(data.v)))
@@ -349,6 +354,8 @@ def make_model(
         v_sys, distance, light, var = _predicted_variance(
             spec, satellite, data, orders, rho_c, v_center
         )
+        if keep_terms:
+            numpyro.deterministic("var_member", var)
         if b is None and foreground is None:
             numpyro.sample("v", dist.Normal(v_sys, jnp.sqrt(var)), obs=data.v)
             return
