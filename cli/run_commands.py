@@ -90,12 +90,16 @@ def fit_cmd(
     """Fit the models to a catalogue and compare each with stars alone."""
     from halo.inputs.catalogue import parse_column_overrides, read_catalogue
     from halo.inputs.satellite import read_satellite
+    from halo.inputs.spec import load_spec
     from halo.pipeline.fit import DEFAULT_MODELS, FitSettings, fit
     from halo.products.text_report import format_summary
 
     for v, o in ((chains, "--chains"), (warmup, "--warmup"), (draws, "--draws")):
         positive_int(v, o)
     out_dir = check_out_dir(out, overwrite)
+    models = list(model) if model else list(DEFAULT_MODELS)
+    for name in models:  # every spec checked before the catalogue is read
+        load_spec(name)
     sat_path = satellite_path(satellite)
     sat = read_satellite(sat_path)
     stars = read_catalogue(catalogue, sat, parse_column_overrides(column))
@@ -112,7 +116,6 @@ def fit_cmd(
         binaries=binaries,
         foreground="auto" if foreground is None else foreground,
     )
-    models = list(model) if model else list(DEFAULT_MODELS)
     summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)
     typer.echo(format_summary(summary, out_dir))
 

@@ -10,6 +10,7 @@ import jax.numpy as jnp
 
 from halo.core.errors import InputError
 from halo.inputs.spec import ANISOTROPY_PARAMETERS, dark_class
+from halo.inputs.spec_priors import POSITIVE_PARAMETERS
 from halo.physics.anisotropy import ANISOTROPIES
 from halo.physics.mass import MassModel, Stars
 
@@ -17,9 +18,6 @@ __all__ = ["build_dark", "build_anisotropy", "build_mass_model", "check_values"]
 
 #: anisotropy parameters that may be left out on the command line (isotropic default)
 _ANIS_DEFAULTS = {"constant": {"beta": 0.0}}
-
-#: parameters that must be positive whatever the model (a dark profile adds its own)
-_POSITIVE = ("m200", "c200", "rho_s", "r_s", "r_a", "stellar_mass", "eta")
 
 
 class _NoDark:
@@ -59,7 +57,7 @@ def check_values(spec, values, source="--set"):
     for a in ANISOTROPY_PARAMETERS[spec.anisotropy]:
         if a not in out:
             raise InputError(f"{source}: missing parameter '{a}' for model '{spec.name}'")
-    positive = set(_POSITIVE) | set(dark.positive)
+    positive = set(POSITIVE_PARAMETERS) | set(dark.positive)
     for k, v in out.items():
         if not math.isfinite(v) and not (v == math.inf and dark.optional.get(k) == math.inf):
             raise InputError(f"{source}: parameter '{k}' must be finite, got {v}")

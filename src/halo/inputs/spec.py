@@ -20,11 +20,14 @@ half-light radius as nuisance parameters: those are not listed in the spec.
 """
 
 import dataclasses
+import math
 import tomllib
 from importlib import resources
 from pathlib import Path
 
 from halo.core.errors import InputError
+from halo.core.fileio import read_input_text
+from halo.inputs.spec_priors import POSITIVE_PARAMETERS, PRIORS, check_prior
 from halo.physics.anisotropy import ANISOTROPIES
 from halo.physics.dark import DARK_PROFILES
 
@@ -36,16 +39,6 @@ __all__ = [
     "ANISOTROPY_PARAMETERS",
     "dark_class",
 ]
-
-#: prior kind -> required keys
-PRIORS = {
-    "uniform": ("low", "high"),
-    "log-uniform": ("low", "high"),
-    "normal": ("mean", "sigma"),
-    "symmetrised-uniform": ("low", "high"),
-    "concentration": ("relation",),
-    "fixed": ("value",),
-}
 
 #: anisotropy kind -> its parameters by spec / command-line names
 ANISOTROPY_PARAMETERS = {
@@ -135,27 +128,13 @@ def _check_header(data, source):
         )
 
 
-def _check_prior(pname, p, source):
-    """One [parameters.NAME] table: a known prior kind with its keys and sensible values."""
-    if not isinstance(p, dict) or "prior" not in p:
-        raise _spec_error(source, f"parameter '{pname}' needs a table with a 'prior' key")
-    kind = p["prior"]
-    if kind not in PRIORS:
-        raise _spec_error(
-            source,
-            f"parameter '{pname}': prior must be one of {', '.join(PRIORS)}, got {kind!r}",
-        )
-    for req in PRIORS[kind]:
-        if req not in p:
-            raise _spec_error(source, f"parameter '{pname}': prior '{kind}' needs '{req}'")
-    if "low" in p and "high" in p:
-        lo, hi = p["low"], p["high"]
-        if not (isinstance(lo, int | float) and isinstance(hi, int | float) and lo < hi):
-            raise _spec_error(source, f"parameter '{pname}': need numbers with low < high")
-        if kind == "log-uniform" and lo <= 0:
-            raise _spec_error(source, f"parameter '{pname}': log-uniform needs low > 0")
-    if kind == "normal" and not p["sigma"] > 0:
-        raise _spec_error(source, f"parameter '{pname}': normal prior needs sigma > 0")
+def _bounds(spec):
+    """(positive, unit-interval, may-be-infinite) parameter names of the spec's model."""
+    if not spec.has_dark:
+        return POSITIVE_PARAMETERS, (), ()
+    cls = dark_class(spec.dark_profile)
+    inf = tuple(k for k, v in cls.optional.items() if v == math.inf)
+    return POSITIVE_PARAMETERS + tuple(cls.positive), tuple(cls.unit_interval), inf
 
 
 def _check_complete(spec, params, source):
@@ -196,7 +175,7 @@ def parse_spec(data, name, source):
                 f"parameter '{pname}' is not a parameter of a {dark} halo with {anis} anisotropy "
                 f"(allowed: {', '.join(sorted(allowed))})",
             )
-        _check_prior(pname, p, source)
+        check_prior(pname, p, source, _bounds(spec))
     _check_complete(spec, params, source)
     binaries = _binaries(data.get("binaries", {}), source)
     return dataclasses.replace(spec, parameters=dict(params), binaries=binaries)
@@ -266,10 +245,10 @@ def load_spec(name_or_path):
     text = None
     candidate = Path(str(name_or_path))
     if candidate.suffix == ".toml" or candidate.exists():
-        if not candidate.is_file():
-            raise InputError(f"{candidate}: no such model spec file")
+        if candidate.exists() and not candidate.is_file():
+            raise InputError(f"{candidate}: not a model spec file")
         name, source = candidate.stem, candidate
-        text = candidate.read_text(encoding="utf-8")
+        text = read_input_text(candidate, missing="no such model spec file")
     else:
         name = str(name_or_path)
         if name not in available_specs():
