@@ -13,6 +13,7 @@ is compared with it. One model's run is :mod:`halo.pipeline.model_run`, the summ
 :mod:`halo.results.summary`.
 """
 
+import dataclasses
 from pathlib import Path
 
 import numpy as np
@@ -25,7 +26,7 @@ from halo.pipeline.likelihoods import Likelihoods
 from halo.pipeline.model_run import run_model
 from halo.pipeline.settings import FitSettings, foreground_setting, say
 from halo.results.members import write_members
-from halo.results.summary import build_summary
+from halo.results.summary import build_summary, clean
 
 __all__ = ["FitSettings", "DEFAULT_MODELS", "fit"]
 
@@ -38,7 +39,62 @@ def _specs(models):
     names = [s.name for s in loaded]
     if len(set(names)) != len(names):
         raise InputError("--model: two specs share the same name")
-    return {s.name: s for s in loaded}
+    return _shared_binaries({s.name: s for s in loaded})
+
+
+def _binary_key(spec):
+    return spec.binary_population(), spec.binary_fraction_range
+
+
+def _shared_binaries(specs):
+    """``specs`` with one binary population and binary-fraction prior for every model.
+
+    A Bayes factor compares two likelihoods of the same data only when both models treat the
+    binaries alike: the dark specs must agree among themselves (else InputError naming their
+    files), and the stars-only comparator takes their ``[binaries]`` table when its own is the
+    default (a stars-only spec with another table of its own is refused too).
+    """
+    dark = [s for s in specs.values() if s.name != STARS_ONLY]
+    if not dark:
+        return specs
+    keys = {_binary_key(s) for s in dark}
+    if len(keys) > 1:
+        files = ", ".join(str(s.source) for s in dark)
+        raise InputError(
+            f"{files}: the models' [binaries] tables differ (orbit population or fraction "
+            "prior); every model of a comparison must share them"
+        )
+    ref, stars = dark[0], specs[STARS_ONLY]
+    if _binary_key(stars) != _binary_key(ref):
+        if stars.binaries:
+            raise InputError(
+                f"{stars.source}, {ref.source}: the [binaries] tables of the stars-only and the "
+                "dark models differ; every model of a comparison must share them"
+            )
+        specs = {**specs, STARS_ONLY: dataclasses.replace(stars, binaries=dict(ref.binaries))}
+    return specs
+
+
+def shared_settings(specs, settings, foreground, satellite):
+    """What every model of the comparison shares (summary.json ``comparison``): the binary
+    population and binary-fraction prior (None with binaries off) and the foreground treatment."""
+    fg = None
+    if foreground[0]:
+        comps = satellite.foreground
+        fg = "one Gaussian, free mean and width" if comps is None else [list(c) for c in comps]
+    out = {"binaries": None, "foreground": fg}
+    if settings.binaries:
+        pop, frac = _binary_key(specs[STARS_ONLY])
+        out["binaries"] = {
+            "population": dataclasses.asdict(pop),
+            "fraction_range": list(frac),
+            "spec_table": dict(specs[STARS_ONLY].binaries),
+        }
+    out["note"] = (
+        "every model, stars-only included, uses this binary population, binary-fraction prior "
+        "and foreground treatment"
+    )
+    return out
 
 
 def _sigma_angles(stars):
@@ -100,6 +156,7 @@ def fit(
     summary = build_summary(
         stars, satellite, settings, (fg_on, fg_reason), results, specs, satellite_path
     )
+    summary["comparison"] = clean(shared_settings(specs, settings, (fg_on, fg_reason), satellite))
     if not summary["dispersion"]["resolved"]:
         say("WARNING: " + summary["dispersion"]["message"], settings)
     _write_outputs(out_dir, summary, results, stars, satellite, ctx)
