@@ -41,7 +41,7 @@ from halo.inputs.columns import (
     parse_column_overrides,  # moved (halo.inputs.columns)
     resolve_columns,
 )
-from halo.inputs.epochs import merge_epochs
+from halo.inputs.epochs import MIN_STARS, merge_epochs
 from halo.inputs.sky import angle_to_kpc, projected_offsets
 
 __all__ = [
@@ -234,17 +234,19 @@ def stars_from_table(
     read_notes=(),
     few_stars=10,
     far_r_half=10.0,
+    min_stars=MIN_STARS,
 ):
     """Validate an astropy table of velocities and reduce it to :class:`StarData`.
 
     The work of :func:`read_catalogue` without the file (e.g. for mock catalogues).
     ``few_stars``: warn below this many stars; ``far_r_half``: warn about stars whose elliptical
     radius exceeds this many (major-axis) half-light radii.
+    ``min_stars``: refuse fewer stars than this (a workspace's batch: 1).
     """
     where = f"{source}:"
     roles = resolve_columns(table.colnames, columns or {}, where)
     values, unit_notes = column_values(table, roles, where)
-    ep = merge_epochs(table, roles, values, where)
+    ep = merge_epochs(table, roles, values, where, min_stars)
     off, s_ra, s_dec = _star_offsets(values, ep, satellite, roles, where)
     warns = ep.warnings + _warnings(
         off.radius_ell_deg, ep.merged["v"], ep.star_ids, satellite, roles, few_stars, far_r_half

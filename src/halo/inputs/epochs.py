@@ -42,12 +42,13 @@ class Epochs(NamedTuple):
     warnings: list
 
 
-def merge_epochs(table, roles, values, where):
+def merge_epochs(table, roles, values, where, min_stars=MIN_STARS):
     """Group the rows of ``table`` into stars: :class:`Epochs`.
 
     ``values`` are the checked columns by role (ra, dec, vlos, vlos_err, optional mjd and
     member_prob). InputError on a repeated (id, mjd), an id repeated without an mjd column, or
-    fewer than :data:`MIN_STARS` stars.
+    fewer than ``min_stars`` stars (a batch added to a workspace may hold fewer than
+    :data:`MIN_STARS`: the workspace checks its whole catalogue).
     """
     n_rows = len(table)
     v, err = values["vlos"], values["vlos_err"]
@@ -57,10 +58,10 @@ def merge_epochs(table, roles, values, where):
     key = np.lexsort((rows, rows if mjd is None else mjd, star))
     _check_repeats(star[key], rows[key], None if mjd is None else mjd[key], ids, roles, where)
     n_stars = len(ids)
-    if n_stars < MIN_STARS:
+    if n_stars < min_stars:
         raise InputError(
             f"{where} only {n_stars} star(s) after merging epochs of {n_rows} row(s); "
-            f"at least {MIN_STARS} are needed"
+            f"at least {min_stars} are needed"
         )
     merged = _merge(v, err, star, n_stars)
     starts = np.flatnonzero(np.r_[True, star[key][1:] != star[key][:-1]])

@@ -9,25 +9,43 @@ stays in objects/ and in the record.
 """
 
 import io
+import re
 from pathlib import Path
 
 import numpy as np
 
 from halo.core.errors import InputError
+from halo.inputs.epochs import MIN_STARS
 from halo.workspace.record import now, open_workspace, sha256
 
-__all__ = ["COLUMNS", "add_catalogue", "canonical_bytes", "read_rows", "rows_from_stars"]
+__all__ = [
+    "COLUMNS",
+    "add_catalogue",
+    "canonical_bytes",
+    "canonical_ids",
+    "read_rows",
+    "rows_from_stars",
+]
 
 COLUMNS = ("id", "ra", "dec", "vlos", "vlos_err", "mjd", "member_prob")
 #: columns compared when a row of a new batch matches one of the workspace
 _COMPARED = ("ra", "dec", "vlos", "vlos_err", "member_prob")
+_INTEGRAL_FLOAT = re.compile(r"^([+-]?\d+)\.0*$")
+
+
+def canonical_ids(ids):
+    """Star ids in canonical form: an integral number written as a float (``1.0``, as a float
+    id column gives it) is written as the integer (``1``), so that a batch whose id column was
+    read as floats matches the same stars given with integer ids."""
+    ids = np.asarray(ids).astype(str)
+    return np.array([_INTEGRAL_FLOAT.sub(r"\1", s) for s in ids], dtype=str)
 
 
 def rows_from_stars(stars):
     """Per-epoch rows of a StarData as a dict of arrays in canonical units."""
     es = np.asarray(stars.epoch_star)
     rows = {
-        "id": np.asarray(stars.id).astype(str)[es],
+        "id": canonical_ids(stars.id)[es],
         "ra": np.asarray(stars.ra, dtype=float)[es],
         "dec": np.asarray(stars.dec, dtype=float)[es],
         "vlos": np.asarray(stars.epoch_v, dtype=float),
@@ -74,7 +92,7 @@ def read_rows(path):
 
     t = Table.read(path, format="ascii.ecsv")
     rows = {c: np.asarray(t[c]) for c in t.colnames}
-    rows["id"] = rows["id"].astype(str)
+    rows["id"] = canonical_ids(rows["id"])
     for c in ("ra", "dec", "vlos", "vlos_err", "member_prob"):
         if c in rows:
             rows[c] = rows[c].astype(float)
@@ -91,18 +109,29 @@ def _epoch_key(rows, k):
     return rows["id"][k], None if np.isnan(rows["mjd"][k]) else float(rows["mjd"][k])
 
 
+def _has_mjd(rows):
+    return bool(np.any(np.isfinite(rows["mjd"])))
+
+
+def _same_columns(old, new, source):
+    """InputError unless the batch carries member_prob and mjd exactly when the workspace does
+    (a version mixing rows with and without epochs could never be fitted)."""
+    for col, has in (("member_prob", lambda r: "member_prob" in r), ("mjd", _has_mjd)):
+        if has(old) != has(new):
+            raise InputError(
+                f"{source}: {col} is given in "
+                f"{'this file' if has(new) else 'the workspace'} only; every batch must carry "
+                "it or none"
+            )
+
+
 def _merge(old, new, row_no, source, latest_seq, replace):
     """(merged rows, rows added, rows replaced) of a batch ``new`` merged into ``old``.
 
     InputError naming the file (``source``), row and column of the first conflict unless
     ``replace``; ``row_no`` are the batch rows' 1-based file rows.
     """
-    if ("member_prob" in old) != ("member_prob" in new):
-        raise InputError(
-            f"{source}: member_prob is given in "
-            f"{'this file' if 'member_prob' in new else 'the workspace'} only; every "
-            "batch must carry it or none"
-        )
+    _same_columns(old, new, source)
     index = {_epoch_key(old, k): k for k in range(len(old["id"]))}
     keep_new = np.zeros(len(new["id"]), dtype=bool)
     replace_old = []
@@ -159,12 +188,32 @@ def _batch_rows(ws, catalogue, columns):
     from halo.inputs.satellite import read_satellite
 
     sat = read_satellite(ws.satellite_path())
-    stars = read_catalogue(catalogue, sat, columns)
+    # a batch may hold a single star: the workspace's whole catalogue needs MIN_STARS
+    stars = read_catalogue(catalogue, sat, columns, min_stars=1)
     if "id" not in stars.columns:
         raise InputError(
             f"{catalogue}: a workspace needs an id column to match stars between catalogues"
         )
     return rows_from_stars(stars), np.asarray(stars.epoch_row)
+
+
+def _merged(ws, latest, new, row_no, catalogue, replace):
+    """(merged rows, rows added, rows replaced) of the batch merged into the latest version.
+
+    A latest version whose object was edited or damaged is refused (InputError), unless the
+    batch is exactly that version: then it is written again (restored) and nothing changes.
+    """
+    if latest is None:
+        return new, len(new["id"]), 0
+    try:
+        path = ws.catalogue_path(latest["sha256"])
+    except InputError:
+        if sha256(canonical_bytes(new)) != latest["sha256"]:
+            raise
+        ws.store(canonical_bytes(new), ".ecsv")
+        return new, 0, 0
+    old = read_rows(path)
+    return _merge(old, new, row_no, catalogue, latest["seq"], replace)
 
 
 def add_catalogue(root, catalogue, columns=None, replace=False):
@@ -179,15 +228,16 @@ def add_catalogue(root, catalogue, columns=None, replace=False):
     with ws.lock("add"):
         new, row_no = _batch_rows(ws, catalogue, columns)
         latest = ws.latest_catalogue()
-        if latest is None:
-            merged, added, replaced = new, len(new["id"]), 0
-        else:
-            old = read_rows(ws.catalogue_path(latest["sha256"]))
-            merged, added, replaced = _merge(old, new, row_no, catalogue, latest["seq"], replace)
+        merged, added, replaced = _merged(ws, latest, new, row_no, catalogue, replace)
         data = canonical_bytes(merged)
         sha = sha256(data)
         n_rows = len(merged["id"])
         n_stars = len(np.unique(merged["id"]))
+        if n_stars < MIN_STARS:
+            raise InputError(
+                f"{catalogue}: the workspace's catalogue would hold {n_stars} star(s); at least "
+                f"{MIN_STARS} are needed (add a file with more stars)"
+            )
         if latest is not None and sha == latest["sha256"]:
             return {"changed": False, "seq": latest["seq"], "sha256": sha, "added": 0,
                     "replaced": 0, "n_rows": n_rows, "n_stars": n_stars}  # fmt: skip

@@ -73,12 +73,30 @@ class Workspace:
     # ------------------------------------------------------------------ database
     @contextlib.contextmanager
     def db(self):
-        con = sqlite3.connect(self.db_path, timeout=30)
+        """A connection in one transaction (committed on success, rolled back on error);
+        InputError saying how to recover when the record is not a whole halo database."""
         try:
-            with con:  # one transaction: committed on success, rolled back on error
+            con = sqlite3.connect(self.db_path, timeout=30)
+        except sqlite3.Error as exc:
+            raise self.damaged(exc) from None
+        try:
+            with con:
                 yield con
+        except sqlite3.DatabaseError as exc:
+            if not _is_damage(exc):
+                raise
+            raise self.damaged(exc) from None
         finally:
             con.close()
+
+    def damaged(self, exc):
+        """The InputError of a record that is overwritten, truncated or otherwise damaged."""
+        return InputError(
+            f"{self.db_path}: the workspace record is damaged ({exc}); the catalogue versions "
+            f"({self.objects}/*.ecsv) and runs ({self.runs}/) are untouched: restore "
+            f"{DB_NAME} from a backup, or create a new workspace with `halo init` and `halo add` "
+            "the catalogue files to it"
+        )
 
     def meta(self, key, default=None):
         with self.db() as con:
@@ -100,9 +118,11 @@ class Workspace:
     def latest_satellite(self):
         with self.db() as con:
             row = con.execute(
-                "SELECT seq, sha256 FROM satellite_versions ORDER BY seq DESC LIMIT 1"
+                "SELECT seq, sha256, source FROM satellite_versions ORDER BY seq DESC LIMIT 1"
             ).fetchone()
-        return dict(zip(("seq", "sha256"), row, strict=True))
+        if row is None:
+            raise self.damaged("no satellite version")
+        return dict(zip(("seq", "sha256", "source"), row, strict=True))
 
     def runs_list(self):
         with self.db() as con:
@@ -130,19 +150,37 @@ class Workspace:
         return self.objects / f"{sha}{suffix}"
 
     def store(self, data, suffix):
-        """Store bytes under their hash (no-op when present); returns the hash."""
+        """Store bytes under their hash (no-op when present and whole: a damaged or edited
+        object is written again); returns the hash."""
         sha = sha256(data)
         path = self.object_path(sha, suffix)
-        if not path.exists():
+        if not _holds(path, sha):
             with atomic_path(path) as tmp:
                 tmp.write_bytes(data)
         return sha
 
+    def verified(self, sha, suffix):
+        """The path of object ``sha``, after checking that its content still has that hash
+        (objects are never re-hashed otherwise); InputError naming it when not."""
+        path = self.object_path(sha, suffix)
+        if not path.is_file():
+            raise InputError(
+                f"{path}: missing from the workspace (the record refers to it); restore it "
+                "from a backup or add the original file again"
+            )
+        if not _holds(path, sha):
+            raise InputError(
+                f"{path}: its content no longer matches its hash (edited or damaged after it "
+                "was stored; objects must never be edited in place): restore it from a backup, "
+                "or `halo add` the one file that version was made from again"
+            )
+        return path
+
     def satellite_path(self):
-        return self.object_path(self.latest_satellite()["sha256"], ".toml")
+        return self.verified(self.latest_satellite()["sha256"], ".toml")
 
     def catalogue_path(self, sha):
-        return self.object_path(sha, ".ecsv")
+        return self.verified(sha, ".ecsv")
 
     # ------------------------------------------------------------------ lock
     @contextlib.contextmanager
@@ -150,7 +188,13 @@ class Workspace:
         """Hold the workspace's write lock while the block runs (``what`` names the holder);
         InputError at once when another command holds it."""
         path = self.root / ".lock"
-        fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as exc:
+            raise InputError(
+                f"{path}: cannot open the workspace's lock file ({exc.strerror}); it must be a "
+                "plain file the user can write (remove it if it is a folder)"
+            ) from None
         try:
             try:
                 fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
@@ -173,4 +217,25 @@ def open_workspace(root):
     ws = Workspace(root)
     if not ws.db_path.is_file():
         raise InputError(f"{root}: not a halo workspace (create one with `halo init`)")
+    with ws.db() as con:  # a damaged record is named now, not halfway through a command
+        for table in ("meta", "catalogue_versions", "satellite_versions", "runs"):
+            con.execute(f"SELECT count(*) FROM {table}").fetchone()
     return ws
+
+
+def _is_damage(exc):
+    """True for the errors of a database that is not (or no longer) a whole halo record."""
+    if type(exc) is sqlite3.DatabaseError:  # "file is not a database", "malformed" ...
+        return True
+    msg = str(exc)
+    return isinstance(exc, sqlite3.OperationalError) and (
+        msg.startswith(("no such table", "no such column", "disk I/O error")) or "malformed" in msg
+    )
+
+
+def _holds(path, sha):
+    """True when the file ``path`` exists and its content has the hash ``sha``."""
+    try:
+        return sha256(Path(path).read_bytes()) == sha
+    except OSError:
+        return False
