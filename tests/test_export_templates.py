@@ -23,6 +23,12 @@ from scipy import integrate
 from halo.core.constants import DEG, MSUN2_KPC5_TO_GEV2_CM5, MSUN_KPC2_TO_GEV_CM2
 from halo.physics.jfactor import d_factor, dj_domega, j_factor
 
+# the pixelisation error of a cone sum with 0.01 deg pixels, as stated in halo/products/export.py
+CONE_SUM_TOL = {
+    "dj": {0.1: 3e-3, 0.2: 3e-4, 0.5: 3e-4},
+    "dd": {0.1: 8e-3, 0.2: 1e-3, 0.5: 1e-3},
+}
+
 
 @pytest.fixture(scope="module")
 def exported(tmp_path_factory):
@@ -48,11 +54,14 @@ def test_template_cone_sums_match_exact_cone(exported, kind, factor, conv):
     per_draw = values_per_draw(lambda p, d: factor(p, d, angles), exported["post"], chains, draws)
     mean = np.asarray(per_draw).mean(axis=0) * conv
     for i, theta in enumerate((0.1, 0.2, 0.5)):
-        # the validation: pixels within the cone times their solid angle reproduce the
-        # mean exact-cone value (halo.physics.jfactor, checked against scipy in
-        # tests/test_jfactor.py) within 1%; the residual is the pixelisation of the cone's edge
+        # pixels within the cone times their solid angle reproduce the mean exact-cone value
+        # (halo.physics.jfactor, checked against scipy in tests/test_jfactor*.py) to the level
+        # stated in halo/products/export.py (step 7); the residual is the pixelisation of the
+        # cone's edge
         inside = sep <= theta
-        assert np.sum(data[inside] * omega[inside]) == pytest.approx(mean[i], rel=1e-2)
+        err = abs(np.sum(data[inside] * omega[inside]) / mean[i] - 1)
+        print(f"{kind} cone sum at {theta} deg: rel err {err:.1e}")
+        assert err < CONE_SUM_TOL[kind][theta]
     key = "J" if kind == "dj" else "D"
     total = np.sum(data * omega)
     assert total == pytest.approx(hdr[f"{key}INT"], rel=1e-12)

@@ -27,8 +27,10 @@ from halo.physics.mass import MassModel, Stars
 
 from jeans_reference import beta_np, burkert_mass_np, kernel, nfw_mass_np, sigma_los_reference
 
-TOL_DEFAULT = 1e-4  # the issue's requirement; measured errors are printed by -s
-TOL_FAST = 1e-3
+# the accuracy stated in halo/physics/jeans.py, README.md and DEVELOPERS.md, asserted over the
+# anisotropy prior of the shipped specs (beta~ in [-0.95, 0.95], beta from -38 to 0.974)
+TOL_DEFAULT = 1e-5
+TOL_FAST = 1e-4
 
 # --------------------------------------------------------------------------------------------
 # analytic solutions
@@ -136,6 +138,9 @@ ANISOTROPIES = {
     "tangential": ("constant", {"beta": -0.8}),
     # beta~ = -0.7 in the symmetrised prior of the fits: f = r^-11 spans ~10^70 on the grid
     "very-tangential": ("constant", {"beta": -5.67}),
+    # the edges of the shipped specs' prior, beta~ = -0.95 and 0.95: f = r^-76 and r^1.95
+    "prior-tangential-edge": ("constant", {"beta": -38.0}),
+    "prior-radial-edge": ("constant", {"beta": 2 * 0.95 / 1.95}),
     "om": ("om", {"r_a": 0.05}),
     "bvh": ("bvh", {"beta_0": -0.2, "beta_inf": 0.6, "r_a": 0.04, "eta": 1.5}),
 }
@@ -177,7 +182,7 @@ def test_against_scipy_kernel_reference(halo_name, anis_name):
     light = Plummer(R_E)
     model = MassModel((_jax_halo(halo_name), Stars(light, m_star)))
     anis = _anis_jax(kind, p)
-    for orders, tol in [(DEFAULT, TOL_DEFAULT / 5), (FAST, TOL_FAST)]:
+    for orders, tol in [(DEFAULT, TOL_DEFAULT), (FAST, TOL_FAST)]:
         s = np.asarray(sigma_los(model, light, anis, R_TEST, orders))
         err = np.max(np.abs(s / ref - 1))
         print(f"{halo_name} {anis_name} {orders is DEFAULT and 'DEFAULT' or 'FAST'} {err:.2e}")
@@ -202,7 +207,7 @@ def test_virial_identity(anis_name):
 
     ref = G / 3 * integrate.quad(integrand, 0, np.inf, epsabs=0, epsrel=1e-12, limit=300)[0]
     val = float(global_dispersion(NFW(3e7, 0.6), light, _anis_jax(kind, p)))
-    assert val == pytest.approx(ref, rel=1e-5)
+    assert val == pytest.approx(ref, rel=TOL_DEFAULT)
 
 
 def test_radial_anisotropy_cored_centre_is_finite():
@@ -271,13 +276,14 @@ def test_jit_matches_eager_and_vmap():
     theta = jnp.array([3e7, 0.6, R_E, 0.3, 2e4])
     with jax.disable_jit():
         eager = _sigma_from(theta, R_TEST[:2], FAST)
-    jitted = jax.jit(_sigma_from, static_argnums=2)(theta, R_TEST, FAST)
+    one = jax.jit(_sigma_from, static_argnums=2)
+    jitted = one(theta, R_TEST, FAST)
     np.testing.assert_allclose(eager, jitted[:2], rtol=1e-12)
-    eager = jitted
-    np.testing.assert_allclose(eager, jitted, rtol=1e-12)
+    # each row of the vmapped batch against its own jitted call (different parameters per row)
     batch = jnp.stack([theta, theta.at[3].set(-0.5), theta.at[0].set(1e8)])
     out = jax.vmap(lambda t: _sigma_from(t, R_TEST))(batch)
-    np.testing.assert_allclose(out[0], eager, rtol=1e-12)
+    for k in range(batch.shape[0]):
+        np.testing.assert_allclose(out[k], one(batch[k], R_TEST, FAST), rtol=1e-12)
     assert np.all(out[2] > out[0])  # denser halo, hotter stars
 
 

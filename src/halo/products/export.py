@@ -60,7 +60,9 @@ Accuracy of each numerical step
 6. Pixel solid angles: exact closed form for a gnomonic rectangle (rounding < 1e-11 relative).
 7. Summing pixels whose centres lie within a cone approximates the cone by whole pixels: the
    error depends on pixel size; with 0.01 deg pixels, for the NFW test haloes of
-   tests/test_export.py, 2e-4 (J) and 8e-4 (D) at 0.5 deg, 3e-3 (J) and 7e-3 (D) at 0.1 deg.
+   tests/export_setup.py, below 3e-4 (J) and 1e-3 (D) at 0.2 and 0.5 deg, 3e-3 (J) and 8e-3 (D)
+   at 0.1 deg (measured 2.0e-4 / 7.8e-4 at 0.5 deg, 2.6e-3 / 6.8e-3 at 0.1 deg; asserted at
+   these levels by tests/test_export_templates.py).
    This is a property of the pixel grid, not of the template values.
 """
 
