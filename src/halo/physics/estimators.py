@@ -227,6 +227,7 @@ def propagate(
     sigma_err=0.0,
     r_e_err=0.0,
     *,
+    distance_rel_err=0.0,
     method="linear",
     n_samples=200_000,
     seed=0,
@@ -240,12 +241,16 @@ def propagate(
     sigma_los, sigma_err : float
         Dispersion and its 1-sigma error [km/s].
     r_e, r_e_err : float
-        Projected half-light radius and its 1-sigma error [kpc].
+        Projected half-light radius and its 1-sigma error at fixed distance [kpc] (the angular
+        size's error times the distance).
+    distance_rel_err : float, optional
+        Relative 1-sigma error of the distance d: R_e = theta_e d, so R_e is scaled by an
+        independent factor d / d0 (a positive Gaussian of mean 1 and this width); default 0.
     method : {"linear", "montecarlo"}
         ``"linear"``: first-order propagation, a Gaussian of width
-        M sqrt((2 d_sigma / sigma)^2 + (d_R / R)^2) (exact to first order since every estimator
-        is proportional to sigma^2 R_e). ``"montecarlo"``: ``n_samples`` draws of independent
-        Gaussians truncated to positive values, pushed through the estimator.
+        M sqrt((2 d_sigma / sigma)^2 + (d_R / R)^2 + (d_d / d)^2) (exact to first order since
+        every estimator is proportional to sigma^2 R_e). ``"montecarlo"``: ``n_samples`` draws
+        of independent Gaussians truncated to positive values, pushed through the estimator.
     n_samples : int, optional
         Monte Carlo sample size; quantiles carry a relative sampling error ~ 1 / sqrt(n_samples).
     seed : int, optional
@@ -257,11 +262,13 @@ def propagate(
         Keys ``median``, ``p16``, ``p84``, ``p2.5``, ``p97.5``, ``mean``, ``std`` (floats, Msun).
     """
     func = ESTIMATORS[estimator] if isinstance(estimator, str) else estimator
-    if not (sigma_los > 0 and r_e > 0 and sigma_err >= 0 and r_e_err >= 0):
+    if not (
+        sigma_los > 0 and r_e > 0 and sigma_err >= 0 and r_e_err >= 0 and distance_rel_err >= 0
+    ):
         raise ValueError("propagate needs sigma_los > 0, r_e > 0 and non-negative errors")
     if method == "linear":
         m = float(func(sigma_los, r_e))
-        rel = math.hypot(2.0 * sigma_err / sigma_los, r_e_err / r_e)
+        rel = math.hypot(2.0 * sigma_err / sigma_los, r_e_err / r_e, distance_rel_err)
         sd = m * rel
         z1, z2 = 0.994457883209753, 1.959963984540054  # Gaussian 84th and 97.5th percentiles
         return {
@@ -278,6 +285,8 @@ def propagate(
     rng = np.random.default_rng(seed)
     sig = _positive_normal(rng, sigma_los, sigma_err, n_samples)
     rad = _positive_normal(rng, r_e, r_e_err, n_samples)
+    if distance_rel_err > 0:
+        rad = rad * _positive_normal(rng, 1.0, distance_rel_err, n_samples)
     return quantiles(func(sig, rad))
 
 

@@ -5,7 +5,8 @@ Per draw (vectorised over draws with ``jax.vmap``):
 - ``r_half_3d_pc``: 3D half-light radius r_1/2 of the light profile at the draw's R_e [pc];
 - ``m_half_msun``: total mass (halo + stars) inside r_1/2 [Msun];
 - ``ml_half_v``: M(<r_1/2) / (L_V / 2), the V-band mass-to-light ratio inside r_1/2 (needs an
-  absolute magnitude in the satellite file; its error is drawn per draw);
+  absolute magnitude in the satellite file; its error is drawn per draw). The magnitude holds at
+  the file's distance d0, so L_V at the draw's distance d is L_V(M_V) (d / d0)^2;
 - ``dark_mass_half_msun``, ``log_slope_half``: dark mass inside and dark log-slope at r_1/2;
 - mass and density profiles (dark, stars, total) at :data:`PROFILE_RADII_PC`;
 - ``log10_j`` and ``log10_d`` at 0.1, 0.2 and 0.5 deg and at the angle 2 r_1/2 / distance
@@ -95,12 +96,14 @@ def derive(spec, satellite, samples, *, sigma_angles_deg, rng=None, batch=1000):
     res = map_draws(one, values, distance, r_e, batch=batch)
     lum = _luminosity_draws(satellite, samples, len(distance), rng)
     if lum is not None:
+        lum = lum * (distance / satellite.distance_kpc) ** 2
         res["ml_half_v"] = res["m_half_msun"] / (0.5 * lum)
     return res
 
 
 def _luminosity_draws(satellite, samples, n, rng):
-    """L_V [Lsun] per draw: from the sampled magnitude, or the file's magnitude and its error."""
+    """L_V [Lsun] per draw at the file's distance: from the sampled magnitude, or the file's
+    magnitude and its error."""
     if "abs_mag_v" in samples:
         mag = np.asarray(samples["abs_mag_v"]).ravel()
     elif satellite.absolute_magnitude_v is not None:

@@ -34,7 +34,10 @@ def estimators(stars, satellite, member_prob=None, binary_prob=None):
     use, selection = _selection(stars.n_stars, member_prob, binary_prob)
     fit = dispersion_ml(np.asarray(stars.v)[use], np.asarray(stars.v_err)[use])
     r_e = satellite.r_half_circ_kpc
+    # r_half_err_pc is the error at fixed distance (angular error x distance_kpc); the distance
+    # error enters once, as the relative error of the distance that scales R_e = theta_e d
     r_e_err = satellite.r_half_err_pc * 1e-3 * np.sqrt(1 - satellite.ellipticity)
+    d_rel = satellite.distance_err_kpc / satellite.distance_kpc
     out = {
         "sigma_los_kms": fit.sigma,
         "sigma_los_err_kms": fit.sigma_err,
@@ -43,7 +46,15 @@ def estimators(stars, satellite, member_prob=None, binary_prob=None):
     }
     for name in ESTIMATOR_NAMES:
         if fit.sigma > 0:
-            q = propagate(name, fit.sigma, r_e, fit.sigma_err, r_e_err, method="montecarlo")
+            q = propagate(
+                name,
+                fit.sigma,
+                r_e,
+                fit.sigma_err,
+                r_e_err,
+                distance_rel_err=d_rel,
+                method="montecarlo",
+            )
         else:
             q = None
         out[estimator_key(name)] = None if q is None else q["median"]
