@@ -1,6 +1,7 @@
 """The ``halo`` command line (typer). It only parses options and calls library functions.
 
-Exit codes: 0 done; 2 bad input or usage (one line on stderr, no traceback); 1 internal error.
+Exit codes: 0 done; 2 bad input or usage (one line on stderr, no traceback); 1 internal error;
+130 interrupted (SIGINT), the unfinished outputs removed.
 
 The commands live in :mod:`halo.cli.run_commands` (models, predict, fit, demo, mock) and
 :mod:`halo.cli.workspace_commands` (init, add, refit, status, history, export); option values
@@ -18,7 +19,10 @@ from halo.cli import run_commands as run
 from halo.cli import workspace_commands as ws
 from halo.cli.options import UsageFailure
 
-__all__ = ["app", "main"]
+__all__ = ["app", "main", "INTERRUPTED"]
+
+#: exit code of a command interrupted by SIGINT (Ctrl-C): 128 + 2, the shells' convention
+INTERRUPTED = 130
 
 app = typer.Typer(
     add_completion=False,
@@ -71,7 +75,9 @@ def main(argv=None):
     from halo.core.errors import InputError
 
     try:
-        app(args=argv, standalone_mode=False)
+        code = app(args=argv, standalone_mode=False)
+    except KeyboardInterrupt:  # before or after the command ran
+        code = INTERRUPTED
     except (InputError, UsageFailure) as exc:
         print(f"halo: error: {exc}", file=sys.stderr)
         return 2
@@ -88,4 +94,11 @@ def main(argv=None):
             raise
         print(f"halo: internal error: {exc.__class__.__name__}: {exc}", file=sys.stderr)
         return 1
-    return 0
+    if code == INTERRUPTED:  # typer turns Ctrl-C (SIGINT) into this exit code
+        print(
+            "halo: interrupted (SIGINT): nothing unfinished was kept; earlier results are "
+            "as they were",
+            file=sys.stderr,
+        )
+        return INTERRUPTED
+    return code if isinstance(code, int) else 0

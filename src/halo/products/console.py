@@ -109,10 +109,13 @@ def format_status(st):
     ]
     if st.get("up_to_date"):
         lines.append(f"up to date (run {st['last_run']['seq']})")
+    for line in st.get("notes", []):
+        lines.append(f"note: {line}")
     for line in st["stale"]:
         lines.append(f"stale: {line}")
+    texts = st.get("next_text", {})
     for name, action in st.get("next", {}).items():
-        lines.append(f"next refit: {name}: {action}")
+        lines.append(f"next refit: {name}: {texts.get(name, action)}")
     return "\n".join(lines)
 
 

@@ -22,6 +22,11 @@ def _start(m):
     w = m.get("warm_start")
     if not w:
         return "fresh"
+    if w.get("fallback"):
+        return (
+            f"cold start ({esc(w.get('warmup'))} warmup): the warm start from "
+            f"{esc(Path(str(w.get('from', ''))).name)} failed: {esc(w.get('reason', ''))}"
+        )
     matrix = {
         "earlier posterior": "its mass matrix",
         "adapted": "mass matrix adapted (that run had not converged)",

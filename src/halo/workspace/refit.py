@@ -12,17 +12,26 @@ import shutil
 import time
 
 from halo.core.fileio import atomic_path, write_text
-from halo.workspace.create import set_models
+from halo.workspace.create import record_satellite, set_models, sync_satellite
 from halo.workspace.planning import plan as make_plan
 from halo.workspace.record import now, open_workspace
 
-__all__ = ["refit", "last_settings", "headline"]
+__all__ = ["refit", "last_settings", "headline", "action_text"]
 
 _SAYS = {
-    "reuse": "unchanged, reusing run {}",
-    "warm": "refit (warm start from run {})",
+    "reuse": "unchanged, reusing run {src}",
+    "warm": "refit (warm start from run {src}: short warmup, its mass matrix)",
+    "warm-full": "refit (warm start from run {src}; full warmup: {why})",
     "fit": "fit",
 }
+
+
+def action_text(action, src, why, force=False):
+    """What a refit does with a model, in words (``force``: asked by --force)."""
+    text = _SAYS[action].format(src=src, why=why)
+    if action == "fit" and why:
+        text += f" (no warm start: {why})"
+    return text + (" [--force]" if force and action != "reuse" else "")
 
 
 def headline(summary):
@@ -58,12 +67,23 @@ def _staged_specs(ws, specs):
     return paths
 
 
-def _sources(ws, plan, force):
+def _sources(ws, plan):
     """({model: run folder to reuse}, {model: run folder to warm-start from})."""
     actions = plan["models"].items()
-    reuse = {n: ws.runs / src for n, (a, src) in actions if a == "reuse" and not force}
-    warm = {n: ws.runs / src for n, (a, src) in actions if a == "warm"}
+    reuse = {n: ws.runs / src for n, (a, src, _) in actions if a == "reuse"}
+    warm = {n: ws.runs / src for n, (a, src, _) in actions if a in ("warm", "warm-full")}
     return reuse, warm
+
+
+def _say_fallbacks(summary, say):
+    """A line per model whose warm start fell back to a cold start (with its reason)."""
+    for n, m in summary["models"].items():
+        w = m.get("warm_start") or {}
+        if w.get("fallback"):
+            say(
+                f"{n}: the warm start from {w['from']} failed ({w['reason']}): fitted from a "
+                f"cold start with the full warmup ({w['warmup']})"
+            )
 
 
 def _record(ws, seq, folder, started, plan, wall, reuse, summary):
@@ -88,43 +108,64 @@ def _record(ws, seq, folder, started, plan, wall, reuse, summary):
 
 
 def _run(ws, plan, settings, seq, force, say):
-    """Fit into runs/.partial-NNNN, rename it to runs/NNNN and record it; returns wall seconds."""
+    """Fit into runs/.partial-NNNN, rename it to runs/NNNN and record it; returns wall seconds.
+    Interrupted or failed, the partial folder is removed (the record is written last)."""
     from halo.inputs.catalogue import read_catalogue
     from halo.inputs.satellite import read_satellite
     from halo.pipeline.fit import fit
 
     folder = f"{seq:04d}"
     partial = ws.runs / f".partial-{folder}"
-    partial.mkdir(parents=True)
     sat_path = ws.satellite_path()
     sat = read_satellite(sat_path)
     stars = read_catalogue(ws.catalogue_path(plan["catalogue"]["sha256"]), sat)
     models = _staged_specs(ws, plan["specs"])
-    reuse, warm = _sources(ws, plan, force)
-    for n, (a, src) in plan["models"].items():
-        say(f"{n}: " + _SAYS[a].format(src))
+    reuse, warm = _sources(ws, plan)
+    for n, (a, src, why) in plan["models"].items():
+        say(f"{n}: " + action_text(a, src, why, force))
     started = now()
     t0 = time.perf_counter()
-    summary = fit(
-        stars, sat, partial, models, settings, satellite_path=sat_path, reuse=reuse,
-        warm=warm,
-    )  # fmt: skip
-    wall = time.perf_counter() - t0
-    summary_ws = {
-        "run": seq,
-        "catalogue_version": plan["catalogue"]["seq"],
-        "catalogue_version_sha256": plan["catalogue"]["sha256"],
-    }
-    write_text(partial / "workspace_run.json", json.dumps(summary_ws, indent=1) + "\n")
+    partial.mkdir(parents=True)
+    try:
+        summary = fit(
+            stars, sat, partial, models, settings, satellite_path=sat_path, reuse=reuse,
+            warm=warm,
+        )  # fmt: skip
+        wall = time.perf_counter() - t0
+        summary_ws = {
+            "run": seq,
+            "catalogue_version": plan["catalogue"]["seq"],
+            "catalogue_version_sha256": plan["catalogue"]["sha256"],
+        }
+        write_text(partial / "workspace_run.json", json.dumps(summary_ws, indent=1) + "\n")
+    except BaseException:
+        shutil.rmtree(partial, ignore_errors=True)
+        raise
     os.replace(partial, ws.runs / folder)
     _record(ws, seq, folder, started, plan, wall, reuse, summary)
+    _say_fallbacks(summary, say)
     return wall
 
 
-def refit(root, settings=None, force=False, say=print, models=None):
+def _update_satellite(ws, satellite, say):
+    """Record ``satellite`` (a path) as the satellite file, or the recorded file's new content
+    when it changed since its latest version (the lock held)."""
+    if satellite is not None:
+        if record_satellite(ws, satellite):
+            seq = ws.latest_satellite()["seq"]
+            say(f"satellite file {satellite} recorded as version {seq}")
+        return
+    sat = sync_satellite(ws)
+    if sat["changed"]:
+        say(f"{sat['note']}: recorded as version {sat['seq']}")
+
+
+def refit(root, settings=None, force=False, say=print, models=None, satellite=None):
     """Fit what changed since the last run; returns (run folder, message).
 
-    ``models``: spec names or paths to add to (or update in) the workspace first.
+    ``models``: spec names or paths to add to (or update in) the workspace first;
+    ``satellite``: a satellite file to record as the workspace's satellite file first (else the
+    recorded file is re-read, and its new content recorded when it changed).
     """
     from halo.pipeline.fit import FitSettings
 
@@ -133,9 +174,10 @@ def refit(root, settings=None, force=False, say=print, models=None):
     with ws.lock("refit"):
         if models:
             set_models(ws, models)
+        _update_satellite(ws, satellite, say)
         for stale in ws.runs.glob(".partial-*"):  # left by a killed refit
             shutil.rmtree(stale, ignore_errors=True)
-        plan = make_plan(ws, settings)
+        plan = make_plan(ws, settings, force=force)
         if plan["up_to_date"] and not force:
             last = plan["last"]
             return ws.runs / last["folder"], (

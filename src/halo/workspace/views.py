@@ -9,7 +9,7 @@ from halo.core.errors import InputError
 from halo.core.fileio import atomic_path
 from halo.workspace.planning import plan as make_plan
 from halo.workspace.record import open_workspace
-from halo.workspace.refit import last_settings
+from halo.workspace.refit import action_text, last_settings
 
 __all__ = ["status", "latest_run_folder", "history", "history_figure"]
 
@@ -25,7 +25,9 @@ def _stale(last, latest, plan):
             f"(version {last['catalogue_seq']})"
         )
     if last["satellite_sha256"] != plan["satellite"]["sha256"]:
-        stale.append("the satellite file changed since the last run")
+        stale.append(
+            f"the satellite file changed since the last run ({plan['satellite']['source']})"
+        )
     for n, sha in plan["specs"].items():
         if last["specs"].get(n) != sha:
             stale.append(f"model {n} is new or its spec changed")
@@ -56,7 +58,11 @@ def status(root, settings=None):
     out["stale"] = _stale(last, latest, plan)
     out["up_to_date"] = plan["up_to_date"]
     out["last_run"] = None if last is None else {"seq": last["seq"], "folder": last["folder"]}
-    out["next"] = {n: a for n, (a, _) in plan["models"].items()}
+    out["next"] = {n: a for n, (a, _, _) in plan["models"].items()}
+    out["next_text"] = {n: action_text(*m) for n, m in plan["models"].items()}
+    if plan["satellite"]["note"]:
+        out["satellite"] = plan["satellite"]
+        out["notes"] = [plan["satellite"]["note"]]
     return out
 
 
