@@ -6,7 +6,7 @@ from halo.core.fileio import atomic_path
 from halo.physics.estimators import dispersion_ml
 from halo.results.derived import CURVE_ANGLES, PROFILE_RADII_PC
 
-__all__ = ["make_figures", "binned_dispersion"]
+__all__ = ["make_figures", "binned_dispersion", "corner_keys", "CORNER_MAX"]
 
 _COLOURS = ("tab:blue", "tab:orange", "tab:green", "tab:red", "tab:purple", "tab:brown")
 
@@ -162,36 +162,57 @@ def make_figures(results, stars, satellite, sigma_angles, folder, summary):
     return paths
 
 
+#: the corner plot shows at most this many parameters (the figure names those left out)
+CORNER_MAX = 8
+
+
+def corner_keys(res):
+    """(parameters the corner plot shows, parameters left out: beyond CORNER_MAX, or not
+    scalar)."""
+    scalar = [k for k in res["latent"] if np.ndim(res["samples"][k]) == 1]
+    other = [k for k in res["latent"] if k not in scalar]
+    return scalar[:CORNER_MAX], scalar[CORNER_MAX:] + other
+
+
+def _corner_panel(ax, res, keys, i, j):
+    """Panel (i, j) of the corner plot: a histogram on the diagonal, a 2-d histogram below."""
+    k = len(keys)
+    x = np.asarray(res["samples"][keys[j]])
+    if i == j:
+        ax.hist(x, bins=40, color="0.3", histtype="step")
+        ax.set_yticks([])
+    else:
+        ax.hist2d(x, np.asarray(res["samples"][keys[i]]), bins=40, cmap="Greys")
+    if i == k - 1:
+        ax.set_xlabel(keys[j], fontsize=7)
+    else:
+        ax.set_xticklabels([])
+    if j == 0 and i > 0:
+        ax.set_ylabel(keys[i], fontsize=7)
+    elif j > 0:
+        ax.set_yticklabels([])
+    ax.tick_params(labelsize=6)
+
+
 def _corner(plt, res, path, summary, name):
-    keys = [k for k in res["latent"] if np.ndim(res["samples"][k]) == 1]
-    keys = keys[:8]
+    keys, left_out = corner_keys(res)
     k = len(keys)
     fig, axes = plt.subplots(k, k, figsize=(1.6 * k + 1, 1.6 * k + 1), squeeze=False)
-    for i, yi in enumerate(keys):
-        for j, xj in enumerate(keys):
-            ax = axes[i, j]
+    for i in range(k):
+        for j in range(k):
             if j > i:
-                ax.axis("off")
-                continue
-            x = np.asarray(res["samples"][xj])
-            if i == j:
-                ax.hist(x, bins=40, color="0.3", histtype="step")
-                ax.set_yticks([])
+                axes[i, j].axis("off")
             else:
-                y = np.asarray(res["samples"][yi])
-                ax.hist2d(x, y, bins=40, cmap="Greys")
-            if i == k - 1:
-                ax.set_xlabel(xj, fontsize=7)
-            else:
-                ax.set_xticklabels([])
-            if j == 0 and i > 0:
-                ax.set_ylabel(yi, fontsize=7)
-            elif j > 0:
-                ax.set_yticklabels([])
-            ax.tick_params(labelsize=6)
+                _corner_panel(axes[i, j], res, keys, i, j)
+    converged = summary["models"][name]["converged"]
     fig.suptitle(
-        f"{name}" + ("" if summary["models"][name]["converged"] else "  (NOT CONVERGED)"),
-        color="black" if summary["models"][name]["converged"] else "red",
+        f"{name}" + ("" if converged else "  (NOT CONVERGED)"),
+        color="black" if converged else "red",
     )
+    if left_out:
+        fig.text(
+            0.98, 0.98, f"showing {k} of {k + len(left_out)} parameters; not shown: "
+            + ", ".join(left_out), ha="right", va="top", fontsize=8, color="darkred", wrap=True,
+        )  # fmt: skip
     _save(fig, path)
     plt.close(fig)

@@ -5,6 +5,7 @@ import tomllib
 from importlib import resources
 from pathlib import Path
 
+from halo.products.plots import CORNER_MAX
 from halo.products.report_cells import esc
 from halo.products.report_sources import embed_png, figure_list
 
@@ -33,8 +34,9 @@ def _caption(rel, summary):
     if stem.startswith("corner_"):
         model = esc(stem[len("corner_") :])
         return (
-            f"Posterior of model {model}: histograms of each sampled parameter on the diagonal "
-            "and pairwise two-dimensional histograms below it."
+            f"Posterior of model {model}: histograms of the sampled parameters (at most "
+            f"{CORNER_MAX}; the figure names any left out) on the diagonal and pairwise "
+            "two-dimensional histograms below it."
         )
     return f"Figure {esc(rel)}."
 

@@ -1,6 +1,6 @@
 """Human-readable summaries of a fit: the ECSV table and the text printed at the end of a run."""
 
-from astropy.table import Table
+from astropy.table import MaskedColumn, Table
 
 from halo.core.fileio import write_ecsv
 from halo.core.vocabulary import ESTIMATOR_NAMES, QUANTILE_KEYS, estimator_key
@@ -44,7 +44,10 @@ def write_summary_table(summary, path):
     for q in QUANTILE_KEYS:
         t[q] = [float("nan") if r[2] is None or r[2].get(q) is None else r[2][q] for r in rows]
     conv = {m: v["converged"] for m, v in summary["models"].items()}
-    t["converged"] = [conv.get(r[0], True) for r in rows]
+    # the closed-form estimators are not sampled: convergence does not apply (masked)
+    t["converged"] = MaskedColumn(
+        [bool(conv.get(r[0], False)) for r in rows], mask=[r[0] not in conv for r in rows]
+    )
     t.meta["version"] = summary["version"]
     t.meta["created"] = summary["created"]
     t.meta["catalogue_sha256"] = summary["catalogue"]["sha256"]
@@ -70,8 +73,11 @@ def _run_lines(summary):
     lines.append(f"{sat['name']}: {cat['n_stars']} stars ({cat['n_rows']} rows)")
     est = summary["estimators"]
     if est.get("sigma_los_kms") is not None:
+        err = est.get("sigma_los_err_kms")
+        # an unresolved dispersion (maximum at sigma = 0) has no symmetric error
+        err = "(error undefined: unresolved)" if err is None else f"+- {err:.2f}"
         lines.append(
-            f"global dispersion {est['sigma_los_kms']:.2f} +- {est['sigma_los_err_kms']:.2f} km/s"
+            f"global dispersion {est['sigma_los_kms']:.2f} {err} km/s"
             f" ({est.get('n_stars_used', cat['n_stars'])} stars: {est.get('selection', 'all')});"
             f" estimators: Walker09 {_g(est.get('walker2009_msun'))}, Wolf10 "
             f"{_g(est.get('wolf2010_msun'))}, Errani18 {_g(est.get('errani2018_msun'))} Msun"
