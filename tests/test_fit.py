@@ -107,7 +107,9 @@ def test_cluster_does_not_favour_dark_matter(cluster_fit):
     summary, _, _ = cluster_fit
     c = summary["models"]["nfw"]["vs_stars_only"]
     assert c["ln_bayes_factor"] < 1.0, c
-    assert "evidence for dark matter" not in c["verdict"] or c["ln_bayes_factor"] < 1.0
+    # ln B < 1 is "not worth more than a bare mention" (Kass & Raftery 1995, JASA 90, 773,
+    # sec. 3.2: 2 ln B < 2), so the verdict may not claim evidence for dark matter
+    assert "evidence for dark matter" not in c["verdict"], c["verdict"]
 
 
 def test_estimators_agree_with_posterior(dwarf_fit):

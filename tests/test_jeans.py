@@ -13,9 +13,10 @@ References used here:
 
 import jax
 import jax.numpy as jnp
+import mpmath
 import numpy as np
 import pytest
-from scipy import integrate
+from scipy import integrate, special
 
 from halo.core.constants import G
 from halo.core.pytree import pytree
@@ -50,8 +51,10 @@ def test_plummer_self_consistent(orders, tol):
 
 
 def test_plummer_check_values():
-    # REFERENCES [computed]: M = 1e5 Msun, a = 20 pc: sigma_los(0, a, 3a) = 1.779554, 1.496420,
-    # 1.000717 km/s (R = 0 is clamped to the grid's inner radius, 10^-3.5 a)
+    # M = 1e5 Msun, a = 20 pc: sigma_los(0, a, 3a) = 1.779554, 1.496420, 1.000717 km/s, the
+    # closed form of Dejonghe 1987 (sigma_los^2 = 3 pi G M / (64 sqrt(R^2 + a^2))) evaluated at
+    # these radii [computed from the published formula]; R = 0 is clamped to the grid's inner
+    # radius, 10^-3.5 a, which changes the closed form by 5e-8
     light = Plummer(0.02)
     s = sigma_los(Stars(light, 1e5), light, Constant(0.0), jnp.array([0.0, 0.02, 0.06]))
     np.testing.assert_allclose(s, [1.779554, 1.496420, 1.000717], rtol=2e-6)
@@ -77,8 +80,9 @@ class _HernquistTracer:
 
 
 def test_hernquist_isotropic_sigma_r():
-    # Hernquist 1990 eq. 10 with G = M = a = 1; values from REFERENCES [computed]; here G is ours,
-    # so M = 1/G
+    # Hernquist 1990 (ApJ 356, 359), eq. 10, isotropic, evaluated here with G = M = a = 1:
+    # sigma_r^2 = [12 r (r + 1)^3 ln((r + 1) / r) - r / (r + 1) (25 + 52 r + 42 r^2 + 12 r^3)] / 12
+    # (0.08709925, 0.10390824, 0.08684411, 0.06178250 at the radii below); our G, so M = 1/G
     h = _HernquistTracer(1.0)
 
     @pytree
@@ -86,14 +90,18 @@ def test_hernquist_isotropic_sigma_r():
         def mass(self, r):
             return h.mass(r) / G
 
-    r = jnp.array([0.1, 0.5, 1.0, 2.0])
-    s2 = np.asarray(sigma_r(Mass(), h, Constant(0.0), r)) ** 2
-    np.testing.assert_allclose(s2, [0.08709925, 0.10390824, 0.08684411, 0.06178250], rtol=1e-6)
+    r = np.array([0.1, 0.5, 1.0, 2.0])
+    s2 = np.asarray(sigma_r(Mass(), h, Constant(0.0), jnp.asarray(r))) ** 2
+    ref = (
+        12 * r * (r + 1) ** 3 * np.log((r + 1) / r) - r / (r + 1) * np.polyval([12, 42, 52, 25], r)
+    ) / 12
+    np.testing.assert_allclose(s2, ref, rtol=1e-6)
 
 
 def test_nfw_isotropic_sigma_r():
-    # Lokas & Mamon 2001 eq. 14 (NFW tracer in its own potential), in units of 4 pi G rho_s r_s^2;
-    # values from REFERENCES [computed]
+    # Lokas & Mamon 2001 (MNRAS 321, 155), eq. 14 (NFW tracer in its own potential, isotropic),
+    # in units of 4 pi G rho_s r_s^2, evaluated here (Li2(-x) = scipy's spence(1 + x)); it gives
+    # 0.01534105, 0.05889361, 0.09225691, 0.09343940, 0.08412643, 0.04437937 at the radii below
     halo = NFW(rho_s=1.0, r_s=1.0)
 
     @pytree
@@ -110,7 +118,19 @@ def test_nfw_isotropic_sigma_r():
     x = jnp.array([0.01, 0.1, 0.5, 1.0, 2.0, 10.0])
     orders = Orders(lo_dex=-4.0, hi_dex=4.0, n_grid=240)
     s2 = np.asarray(sigma_r(halo, Tracer(), Constant(0.0), x, orders)) ** 2 / (4 * np.pi * G)
-    ref = [0.01534105, 0.05889361, 0.09225691, 0.09343940, 0.08412643, 0.04437937]
+    x = np.asarray(x)
+    lg = np.log1p(x)
+    bracket = (
+        np.pi**2
+        - np.log(x)
+        - 1 / x
+        - 1 / (1 + x) ** 2
+        - 6 / (1 + x)
+        + (1 + 1 / x**2 - 4 / x - 2 / (1 + x)) * lg
+        + 3 * lg**2
+        + 6 * special.spence(1 + x)
+    )
+    ref = 0.5 * x * (1 + x) ** 2 * bracket
     np.testing.assert_allclose(s2, ref, rtol=1e-5)
 
 
@@ -119,14 +139,32 @@ def test_nfw_isotropic_sigma_r():
 
 
 def test_kernel_check_values():
-    # REFERENCES [computed]: K(3; beta=0.25) = 1.1158575401, K(2; beta=-1.3) = 0.5889666616,
-    # K_OM(3; r_a/R = 1) = 1.7214786549; closed forms of Mamon & Lokas 2005 (their A16, A18)
-    b, f = beta_np("constant", {"beta": 0.25})
-    assert kernel(3.0, 1.0, b, f) == pytest.approx(1.1158575401, rel=1e-9)
-    b, f = beta_np("constant", {"beta": -1.3})
-    assert kernel(2.0, 1.0, b, f) == pytest.approx(0.5889666616, rel=1e-9)
-    b, f = beta_np("om", {"r_a": 1.0})
-    assert kernel(3.0, 1.0, b, f) == pytest.approx(1.7214786549, rel=1e-9)
+    # the reference's kernel (nested quadrature) against the closed forms of Mamon & Lokas 2005,
+    # appendix, evaluated here: constant beta (eq. A16, incomplete beta functions by mpmath),
+    # K = u^(2 beta - 1) / 2 [(3/2 - beta) sqrt(pi) Gamma(beta - 1/2) / Gamma(beta)
+    #     + beta B(1/u^2; beta + 1/2, 1/2) - B(1/u^2; beta - 1/2, 1/2)]
+    # (K(3; 0.25) = 1.1158575401, K(2; -1.3) = 0.5889666616), and Osipkov-Merritt (eq. A18),
+    # K = (u_a^2 + 1/2) / (u_a^2 + 1)^(3/2) (u^2 + u_a^2) / u arctan(sqrt((u^2 - 1) / (u_a^2 + 1)))
+    #     - sqrt(1 - 1/u^2) / (2 (u_a^2 + 1))   (K(3; u_a = 1) = 1.7214786549)
+    def k_const(u, beta):
+        def inc(a):
+            return mpmath.betainc(a, 0.5, 0, 1 / u**2)
+
+        lead = (1.5 - beta) * mpmath.sqrt(mpmath.pi) * mpmath.gamma(beta - 0.5) / mpmath.gamma(beta)
+        return float(0.5 * u ** (2 * beta - 1) * (lead + beta * inc(beta + 0.5) - inc(beta - 0.5)))
+
+    def k_om(u, ua):
+        q = ua**2 + 1
+        return (ua**2 + 0.5) / q**1.5 * (u**2 + ua**2) / u * np.arctan(
+            np.sqrt((u**2 - 1) / q)
+        ) - np.sqrt(1 - 1 / u**2) / (2 * q)
+
+    for u, beta in ((3.0, 0.25), (2.0, -1.3), (5.0, 0.7)):
+        b, f = beta_np("constant", {"beta": beta})
+        assert kernel(u, 1.0, b, f) == pytest.approx(k_const(u, beta), rel=1e-9)
+    for u, ua in ((3.0, 1.0), (1.5, 0.3)):
+        b, f = beta_np("om", {"r_a": ua})
+        assert kernel(u, 1.0, b, f) == pytest.approx(k_om(u, ua), rel=1e-9)
     # beta = 0: K = sqrt(1 - 1/u^2) (Mamon & Lokas 2005)
     b, f = beta_np("constant", {"beta": 0.0})
     assert kernel(2.5, 1.0, b, f) == pytest.approx(np.sqrt(1 - 1 / 2.5**2), rel=1e-10)
