@@ -11,6 +11,9 @@ __all__ = [
     "estimator_key",
     "STANDARD_ANGLES",
     "ANGLE_2RH",
+    "ANGLE_2RH_CONVENTION",
+    "HALO_TRUNCATION",
+    "JD_CONVENTIONS",
     "angle_key",
     "angle_keys",
     "STARS_ONLY",
@@ -39,6 +42,25 @@ STANDARD_ANGLES = (0.1, 0.2, 0.5)
 
 #: key of the J and D factors inside twice the half-light radius seen from the satellite's distance
 ANGLE_2RH = "2rh"
+
+#: what "2rh" means: twice the projected half-light radius, as in the J-factor literature (e.g.
+#: Walker et al. 2011, ApJ 733, L46: J inside 2 r_h / D, r_h projected [memory]), circularised
+#: like the models
+ANGLE_2RH_CONVENTION = (
+    "2rh: cone half-angle 2 R_e / distance, R_e the circularised projected half-light radius "
+    "r_half * sqrt(1 - ellipticity) (r_half from the satellite file, projected, major axis), each "
+    "posterior draw with its own R_e and distance"
+)
+
+#: the dark haloes whose J and D are reported are not tidally truncated (yet)
+HALO_TRUNCATION = (
+    "J and D are computed for untruncated dark haloes: no tidal radius, the line-of-sight "
+    "integrals run to infinity. A tidally truncated halo gives lower values, most at wide angles "
+    "and for D."
+)
+
+#: the conventions written beside every J and D output (summary.json, tables, FITS, report)
+JD_CONVENTIONS = {"2rh": ANGLE_2RH_CONVENTION, "halo_truncation": HALO_TRUNCATION}
 
 
 def angle_key(angle_deg):

@@ -6,6 +6,7 @@ import jax.numpy as jnp
 import numpy as np
 
 from halo.core.constants import DEG
+from halo.core.vocabulary import JD_CONVENTIONS
 from halo.inputs.build import build_anisotropy, build_mass_model, check_values
 from halo.physics.cosmology import rho_crit
 from halo.physics.jeans import DEFAULT, global_dispersion, sigma_los
@@ -21,9 +22,9 @@ def default_radii_pc(satellite):
 
 
 def default_angles_deg(satellite):
-    """0.1, 0.2, 0.5 deg and the angle subtended by 2 r_1/2 (3D half-light radius) [deg]."""
-    r3 = float(satellite.light().r_half_3d())
-    return [0.1, 0.2, 0.5, 2.0 * r3 / satellite.distance_kpc / DEG]
+    """0.1, 0.2, 0.5 deg and the "2rh" angle, 2 R_e / distance (R_e the circularised projected
+    half-light radius, :data:`halo.core.vocabulary.ANGLE_2RH_CONVENTION`) [deg]."""
+    return [0.1, 0.2, 0.5, 2.0 * satellite.r_half_circ_kpc / satellite.distance_kpc / DEG]
 
 
 def _floats(x):
@@ -85,6 +86,7 @@ def predict(spec, satellite, values, radii_pc=None, angles_deg=None, orders=DEFA
         d = satellite.distance_kpc
         out["log10_j"] = _floats(log10_j(dark, d, th))
         out["log10_d"] = _floats(log10_d(dark, d, th))
+        out["jd_conventions"] = dict(JD_CONVENTIONS)
         derived.update(
             rho_s_msun_kpc3=float(dark.rho_s),
             r_s_kpc=float(dark.r_s),

@@ -8,7 +8,13 @@ import numpy as np
 from halo import __version__
 from halo.core.errors import InputError
 from halo.core.quantiles import quantiles
-from halo.core.vocabulary import QUANTILE_KEYS, STANDARD_ANGLES, angle_key
+from halo.core.vocabulary import (
+    HALO_TRUNCATION,
+    JD_CONVENTIONS,
+    QUANTILE_KEYS,
+    STANDARD_ANGLES,
+    angle_key,
+)
 
 __all__ = ["export_angles", "draws_table", "jd_rows", "jd_table", "CONVENTIONS"]
 
@@ -19,7 +25,8 @@ CONVENTIONS = (
     "computed for the exact cone (no small-angle approximation). Each posterior draw uses its own "
     "distance, so the distance uncertainty is propagated. log10_* columns summarise log10 J or "
     "log10 D (median, 16/84 and 2.5/97.5 percentiles, mean and standard deviation of log10, "
-    "i.e. a log-normal summary); j_mean and d_mean are posterior means of J and D (linear)."
+    "i.e. a log-normal summary); j_mean and d_mean are posterior means of J and D (linear). "
+    + HALO_TRUNCATION
 )
 
 
@@ -61,6 +68,7 @@ def draws_table(name, draws, jd, angles, summary):
     t.meta["catalogue_sha256"] = summary["catalogue"]["sha256"]
     t.meta["converged"] = bool(summary["models"][name]["converged"])
     t.meta["conventions"] = CONVENTIONS
+    t.meta["halo_truncation"] = JD_CONVENTIONS["halo_truncation"]
     return t
 
 
@@ -114,4 +122,5 @@ def jd_table(rows, angles, summary, specs, satellite):
     t.meta["converged"] = {m: bool(summary["models"][m]["converged"]) for m in specs}
     t.meta["angles_deg"] = [float(a) for a in angles]
     t.meta["conventions"] = CONVENTIONS
+    t.meta["halo_truncation"] = JD_CONVENTIONS["halo_truncation"]
     return t

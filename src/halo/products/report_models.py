@@ -58,7 +58,7 @@ def _derived_rows(slug, d):
         rows.append(
             q_row(
                 f"{slug}-{group}-2rh",
-                f"log<sub>10</sub> {sym}(2 {RHALF}/d{at})",
+                f"log<sub>10</sub> {sym}(2 R<sub>e</sub>/d{at})",
                 qs.get("2rh"),
                 f"log<sub>10</sub> {unit}",
                 "f2",

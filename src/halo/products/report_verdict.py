@@ -50,7 +50,7 @@ def _upper_limits_table(summary):
             ("log10_d_upper95", "D", D_UNIT),
         ):
             for angle, val in (ul.get(group) or {}).items():
-                a = "2 r<sub>1/2</sub>/d" if angle == "2rh" else f"{esc(angle)}&deg;"
+                a = "2 R<sub>e</sub>/d" if angle == "2rh" else f"{esc(angle)}&deg;"
                 rows.append(
                     f'<tr id="ul-{slugify(name)}-{group}-{slugify(angle)}"><td>{esc(name)}</td>'
                     f"<td>log<sub>10</sub> {sym}({a})</td>"

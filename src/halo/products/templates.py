@@ -4,6 +4,7 @@ interpolated and averaged over the pixels of a TAN grid, written as FITS (see
 
 import functools
 import math
+import textwrap
 from typing import NamedTuple
 
 import numpy as np
@@ -12,6 +13,7 @@ from halo import __version__
 from halo.core.constants import DEG
 from halo.core.errors import InputError
 from halo.core.fileio import atomic_path
+from halo.core.vocabulary import HALO_TRUNCATION
 from halo.products.jd_draws import profile_draws
 from halo.products.tan_pixels import pixel_average_radial
 
@@ -230,6 +232,9 @@ def _template_cards(hdr, kind, values, omega, info, n_side):
         "distance. Central pixel (cusp): exact cone of the inscribed circle plus",
         "quadrature of the corners; see halo.products.export for the accuracy.",
     ):
+        hdr.add_comment(line)
+    hdr["TRUNCATD"] = (False, "halo tidally truncated? no: see COMMENT")
+    for line in textwrap.wrap(HALO_TRUNCATION, 70):
         hdr.add_comment(line)
 
 

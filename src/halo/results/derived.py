@@ -9,8 +9,11 @@ Per draw (vectorised over draws with ``jax.vmap``):
   the file's distance d0, so L_V at the draw's distance d is L_V(M_V) (d / d0)^2;
 - ``dark_mass_half_msun``, ``log_slope_half``: dark mass inside and dark log-slope at r_1/2;
 - mass and density profiles (dark, stars, total) at :data:`PROFILE_RADII_PC`;
-- ``log10_j`` and ``log10_d`` at 0.1, 0.2 and 0.5 deg and at the angle 2 r_1/2 / distance
-  (key ``"2rh"``), with the draw's distance, so that the distance uncertainty propagates;
+- ``log10_j`` and ``log10_d`` at 0.1, 0.2 and 0.5 deg and at the angle 2 R_e / distance (key
+  ``"2rh"``, ``angle_2rh_deg``; R_e the circularised projected half-light radius, see
+  :data:`halo.core.vocabulary.ANGLE_2RH_CONVENTION`), with the draw's own R_e and distance, so
+  that their uncertainties propagate; untruncated haloes
+  (:data:`halo.core.vocabulary.HALO_TRUNCATION`);
 - sigma_los at a set of radii (for the dispersion-profile figure).
 """
 
@@ -81,8 +84,10 @@ def derive(spec, satellite, samples, *, sigma_angles_deg, rng=None, batch=1000):
             "sigma_los_kms": sigma_los(model, light, anis, d * sig_th, FAST),
         }
         if dark is not None:
-            th = jnp.concatenate([angles, jnp.atleast_1d(2.0 * r3 / d / DEG)])
+            a_2rh = 2.0 * re / d / DEG  # twice the projected (circularised) half-light radius
+            th = jnp.concatenate([angles, jnp.atleast_1d(a_2rh)])
             out.update(
+                angle_2rh_deg=a_2rh,
                 dark_mass_half_msun=dark.mass(r3),
                 log_slope_half=dark.log_slope(r3),
                 mass_dark_msun=dark.mass(radii),
