@@ -67,7 +67,9 @@ def test_dutton14_formula():
 
 
 def test_reference_values():
-    # REFERENCES values [computed from the formulas, rounded to 3 digits]; with Planck18 h = 0.6766
+    # values of the published fits (Dutton & Maccio 2014, MNRAS 441, 3359, c200 NFW fit, Planck
+    # cosmology; Sanchez-Conde & Prada 2014, MNRAS 442, 2271, eq. 1 [memory]) computed from their
+    # formulas and rounded to 3 digits [computed], not tabulated in the papers; with h = 0.6766
     # the formulas give DM14 33.739, 21.190, 13.309 and SCP14 20.380, 15.723, 11.547, so the
     # rounded list is matched to 0.5 per cent (33.8 and 11.6 are not the rounding of the formula).
     m = np.array([1e6, 1e8, 1e10])

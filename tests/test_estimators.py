@@ -117,8 +117,9 @@ def test_flat_rotation_curve_is_exact_for_wolf():
     assert est.walker09_mass(sigma, A) / m_sis(A) == pytest.approx(5.0 / 6.0, rel=1e-11)
 
 
-# R_e / r_s of a massless Plummer tracer (R_e = 30 pc) in an NFW halo; measured relative errors
-# [computed here by quadrature] of (Walker, Wolf, Errani):
+# R_e / r_s of a massless Plummer tracer (R_e = 30 pc) in an NFW halo; relative errors of
+# (Walker, Wolf, Errani), a regression snapshot computed by this project's Jeans solver when the
+# test was written (not published values; the papers' own accuracies are cited in the tests):
 #   0.1: (+0.237, +0.206, +0.058)   0.3: (+0.008, +0.040, -0.011)   0.5: (-0.088, -0.020, -0.014)
 #   1.0: (-0.187, -0.066, +0.023)   2.0: (-0.246, -0.070, +0.104)
 NFW_CASES = {

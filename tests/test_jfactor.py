@@ -37,8 +37,9 @@ from halo.physics.jfactor import (
 
 
 def test_check_halo_values():
-    # [computed] check values (recomputed by direct high-precision quadrature for the project's
-    # reference list); given to 4 decimals, so they are matched to 1e-4 in log10 (< 1e-3 rel.)
+    # regression snapshot, not a published value: check values computed once by an independent
+    # high-precision quadrature of this halo [computed]; given to 4 decimals, so they are matched
+    # to 1e-4 in log10 (< 1e-3 rel.); tests/test_jfactor.py's nested quadrature checks the method
     p = NFW(rho_s=RHO_S, r_s=R_S)
     lj = np.asarray(log10_j(p, DIST, jnp.array([0.1, 0.2, 0.5, 1.0, 30.0])))
     np.testing.assert_allclose(lj, [18.3806, 18.5029, 18.5814, 18.5997, 18.6055], atol=1e-4, rtol=0)

@@ -178,8 +178,8 @@ def _i2k(c, k):
 def test_total_j_truncated_nfw(d, r_s, c, theta):
     """Whole truncated NFW inside the cone.
 
-    Small-angle total: J = (4 pi / 3) rho_s^2 r_s^3 [1 - (1 + c)^-3] / d^2 ([computed], project
-    reference list; elementary: (1 / d^2) Int_0^(c r_s) 4 pi r^2 rho^2 dr = unit x I_0 below).
+    Small-angle total: J = (4 pi / 3) rho_s^2 r_s^3 [1 - (1 + c)^-3] / d^2 (common practice,
+    elementary: (1 / d^2) Int_0^(c r_s) 4 pi r^2 rho^2 dr of the NFW 1996 density = unit x I_0).
     Geometric correction (derived here): for a shell wholly inside the cone A(r) = (4 pi r / d)
     artanh(r / d) = (4 pi r^2 / d^2) [1 + (r/d)^2 / 3 + (r/d)^4 / 5 + ...], so
     J = (4 pi rho_s^2 r_s^3 / d^2) [I_0 + eps^2 I_2 / 3 + eps^4 I_4 / 5 + ...], eps = r_s / d,

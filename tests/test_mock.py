@@ -56,7 +56,8 @@ def test_catalogue_contract_and_truth(tmp_path):
     assert abs(np.mean(resid)) < 4 / math.sqrt(400) and abs(np.std(resid) - 1) < 0.15
     truth = mock.truth
     light = Plummer(0.030 * math.sqrt(0.8))
-    # r_1/2 / R_e = 1 / sqrt(2^(2/3) - 1) = 1.30477 for Plummer (REFERENCES, [computed])
+    # r_1/2 / R_e = 1 / sqrt(2^(2/3) - 1) = 1.30477 for Plummer (Plummer 1911 enclosed mass,
+    # common practice; the number [computed] from the formula)
     assert truth["r_half_3d_kpc"] == pytest.approx(1.30477 * 0.030 * math.sqrt(0.8), rel=1e-5)
     r3 = truth["r_half_3d_kpc"]
     m_half = float(dark.mass(r3)) + M_STARS * float(light.enclosed_3d(r3))

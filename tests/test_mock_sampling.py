@@ -81,8 +81,8 @@ def test_df_mock_matches_jeans(anis):
 
 
 def test_stars_only_plummer_dispersion():
-    # REFERENCES [computed]: stars-only Plummer, M = 2e3 Msun (L = 1e3 Lsun, M/L = 2), R_e = 30 pc:
-    # central sigma_los = 0.205 km/s; closed forms from Dejonghe 1987
+    # stars-only Plummer, M = 2e3 Msun (L = 1e3 Lsun, M/L = 2), R_e = 30 pc: central
+    # sigma_los = 0.205 km/s from the closed form of Dejonghe 1987 (MNRAS 224, 13) [computed]
     s0 = math.sqrt(3 * math.pi * G * M_STARS / (64 * A))
     assert s0 == pytest.approx(0.205, abs=5e-4)
     mock = make_mock(SAT, n_stars=20000, seed=5)
