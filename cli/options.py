@@ -2,12 +2,14 @@
 
 import math
 import os
+import tempfile
 from pathlib import Path
 
 __all__ = [
     "UsageFailure",
     "fail",
     "parse_list",
+    "parse_angles",
     "parse_set",
     "positive_int",
     "check_out_dir",
@@ -24,11 +26,12 @@ def fail(msg):
 
 
 def parse_list(text, option):
-    """Comma-separated positive numbers (None when the option was not given)."""
+    """Comma-separated positive numbers (None when the option was not given); spaces only around
+    the commas ("10 20" is refused, never read as 1020)."""
     if text is None:
         return None
     try:
-        vals = [float(x) for x in text.replace(" ", "").split(",") if x != ""]
+        vals = [float(x) for x in text.split(",") if x.strip() != ""]
     except ValueError:
         fail(f"{option}: expected comma-separated numbers, got {text!r}")
     if not vals:
@@ -36,6 +39,15 @@ def parse_list(text, option):
     for v in vals:
         if not math.isfinite(v) or v <= 0:
             fail(f"{option}: values must be positive, got {v}")
+    return vals
+
+
+def parse_angles(text, option="--angles-deg"):
+    """Cone half-angles [deg]: comma-separated, each above 0 and below 90."""
+    vals = parse_list(text, option)
+    for v in vals or ():
+        if v >= 90:
+            fail(f"{option}: cone half-angles must be below 90 deg, got {v:g}")
     return vals
 
 
@@ -60,11 +72,30 @@ def positive_int(value, option):
     return value
 
 
+def _check_creatable(out):
+    """Refuse an output path that cannot be made: a file on the way, a folder that cannot be
+    written in (checked by making an unnamed probe file there)."""
+    base = out
+    while not base.exists() and base != base.parent:
+        base = base.parent
+    if not base.is_dir():
+        fail(f"--out {out}: {base} is a file, not a folder")
+    try:
+        tempfile.TemporaryFile(dir=base).close()
+    except OSError as exc:
+        fail(f"--out {out}: cannot write in {base} ({exc.strerror or exc.__class__.__name__})")
+
+
 def check_out_dir(out, overwrite):
-    """The output folder of a fit, refused when it holds results and ``overwrite`` is off."""
+    """The output folder of a fit, refused when it holds results and ``overwrite`` is off, or
+    when it cannot be created or written."""
     out = Path(out)
+    for part in out.parts:
+        if len(os.fsencode(part)) > 255:  # NAME_MAX of common file systems (common practice)
+            fail(f"--out {out}: the name '{part[:20]}...' is longer than 255 bytes")
     if out.exists() and not out.is_dir():
         fail(f"--out {out}: exists and is not a folder")
+    _check_creatable(out)
     if (out / "summary.json").exists() and not overwrite:
         fail(f"--out {out}: already holds results; choose another folder or pass --overwrite")
     return out

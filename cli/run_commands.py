@@ -1,12 +1,14 @@
 """Commands on one satellite without a workspace: models, predict, fit, demo and mock."""
 
 import json
+import math
 
 import typer
 
 from halo.cli.options import (
     check_out_dir,
     fail,
+    parse_angles,
     parse_list,
     parse_set,
     positive_int,
@@ -48,7 +50,7 @@ def predict_cmd(
 
     values = parse_set(set_)
     radii = parse_list(radii_pc, "--radii-pc")
-    angles = parse_list(angles_deg, "--angles-deg")
+    angles = parse_angles(angles_deg, "--angles-deg")
     sat = read_satellite(satellite_path(satellite))
     spec = load_spec(model)
     res = predict(spec, sat, values, radii, angles)
@@ -56,6 +58,22 @@ def predict_cmd(
         typer.echo(json.dumps(res))
         return
     typer.echo(format_prediction(res, sat))
+
+
+def _read_inputs(catalogue, satellite, column):
+    """(satellite path, satellite, stars) of `halo fit`; the catalogue's notes and warnings
+    are shown."""
+    from halo.inputs.catalogue import parse_column_overrides, read_catalogue
+    from halo.inputs.satellite import read_satellite
+
+    sat_path = satellite_path(satellite)
+    sat = read_satellite(sat_path)
+    stars = read_catalogue(catalogue, sat, parse_column_overrides(column))
+    for note in stars.notes:
+        typer.echo(f"note: {note}", err=True)
+    for w in stars.warnings:
+        typer.echo(f"warning: {w}", err=True)
+    return sat_path, sat, stars
 
 
 def fit_cmd(
@@ -88,25 +106,10 @@ def fit_cmd(
     quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
 ):
     """Fit the models to a catalogue and compare each with stars alone."""
-    from halo.inputs.catalogue import parse_column_overrides, read_catalogue
-    from halo.inputs.satellite import read_satellite
     from halo.inputs.spec import load_spec
     from halo.pipeline.fit import DEFAULT_MODELS, FitSettings, fit
     from halo.products.text_report import format_summary
 
-    for v, o in ((chains, "--chains"), (warmup, "--warmup"), (draws, "--draws")):
-        positive_int(v, o)
-    out_dir = check_out_dir(out, overwrite)
-    models = list(model) if model else list(DEFAULT_MODELS)
-    for name in models:  # every spec checked before the catalogue is read
-        load_spec(name)
-    sat_path = satellite_path(satellite)
-    sat = read_satellite(sat_path)
-    stars = read_catalogue(catalogue, sat, parse_column_overrides(column))
-    for note in stars.notes:
-        typer.echo(f"note: {note}", err=True)
-    for w in stars.warnings:
-        typer.echo(f"warning: {w}", err=True)
     settings = FitSettings(
         chains=chains,
         warmup=warmup,
@@ -116,6 +119,11 @@ def fit_cmd(
         binaries=binaries,
         foreground="auto" if foreground is None else foreground,
     )
+    out_dir = check_out_dir(out, overwrite)
+    models = list(model) if model else list(DEFAULT_MODELS)
+    for name in models:  # every spec checked before the catalogue is read
+        load_spec(name)
+    sat_path, sat, stars = _read_inputs(catalogue, satellite, column)
     summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)
     typer.echo(format_summary(summary, out_dir))
 
@@ -185,6 +193,8 @@ def mock_cmd(
     from halo.products.console import format_mock_written
 
     positive_int(n_stars, "--n-stars")
+    if not math.isfinite(v_sys):
+        fail(f"--v-sys: expected a finite velocity [km/s], got {v_sys!r}")
     err = parse_list(errors, "--errors")
     if len(err) != 2 or err[0] > err[1]:
         fail("--errors: expected LO,HI with LO <= HI")

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import typer
 
-from halo.cli.options import parse_list, positive_int, satellite_path
+from halo.cli.options import parse_angles, positive_int, satellite_path
 
 __all__ = ["init_cmd", "add_cmd", "refit_cmd", "status_cmd", "history_cmd", "export_cmd"]
 
@@ -140,5 +140,5 @@ def export_cmd(
 
     src = Path(source)
     run = latest_run_folder(src) if (src / DB_NAME).is_file() else src
-    written = export_run(run, out, parse_list(angles_deg, "--angles-deg"))
+    written = export_run(run, out, parse_angles(angles_deg, "--angles-deg"))
     typer.echo(format_export(run, out, written))

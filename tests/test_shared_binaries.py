@@ -54,7 +54,7 @@ def test_disagreeing_dark_specs_are_refused_before_sampling(tmp_path, capsys):
     b = _spec(tmp_path, "nfw_high", "[0.3, 0.9]")
     out = tmp_path / "out"
     args = ["fit", str(cat), str(sat), "--out", str(out), "--model", str(a), "--model", str(b)]
-    args += ["--chains", "1", "--warmup", "20", "--draws", "20"]
+    args += ["--chains", "1", "--warmup", "50", "--draws", "50"]
     assert main(args) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) >= 1 and err[-1].startswith("halo: error: ")

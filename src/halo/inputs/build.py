@@ -19,6 +19,10 @@ __all__ = ["build_dark", "build_anisotropy", "build_mass_model", "check_values"]
 #: anisotropy parameters that may be left out on the command line (isotropic default)
 _ANIS_DEFAULTS = {"constant": {"beta": 0.0}}
 
+#: parameter -> plausible range [Msun] of a satellite's halo and stars: values outside are refused
+#: as slips (common practice: dwarf haloes up to ~1e11-1e12 Msun, the Milky Way's own ~1e12)
+PLAUSIBLE_VALUES = {"m200": (1.0e2, 1.0e13), "stellar_mass": (1.0, 1.0e12)}
+
 
 class _NoDark:
     """Stands for the profile class of a stars-only model: no shape parameters."""
@@ -63,6 +67,12 @@ def check_values(spec, values, source="--set"):
             raise InputError(f"{source}: parameter '{k}' must be finite, got {v}")
         if k in positive and v <= 0:
             raise InputError(f"{source}: parameter '{k}' must be positive, got {v}")
+    for k, (lo, hi) in PLAUSIBLE_VALUES.items():
+        if k in out and not lo <= out[k] <= hi:
+            raise InputError(
+                f"{source}: parameter '{k}' = {out[k]:g} is outside the plausible range "
+                f"{lo:g} to {hi:g} Msun"
+            )
     for k in ("beta", "beta_0", "beta_inf"):
         if k in out and out[k] >= 1:
             raise InputError(f"{source}: anisotropy '{k}' must be < 1, got {out[k]}")

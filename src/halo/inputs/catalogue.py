@@ -244,6 +244,9 @@ def stars_from_table(
     ``min_stars``: refuse fewer stars than this (a workspace's batch: 1).
     """
     where = f"{source}:"
+    if not table.colnames or len(table) == 0:
+        what = "no columns" if not table.colnames else "no rows"
+        raise InputError(f"{where} empty file ({what})")
     roles = resolve_columns(table.colnames, columns or {}, where)
     values, unit_notes = column_values(table, roles, where)
     ep = merge_epochs(table, roles, values, where, min_stars)

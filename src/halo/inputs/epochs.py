@@ -53,6 +53,7 @@ def merge_epochs(table, roles, values, where, min_stars=MIN_STARS):
     n_rows = len(table)
     v, err = values["vlos"], values["vlos_err"]
     mjd, prob = values.get("mjd"), values.get("member_prob")
+    _check_unnamed_epochs(values, roles, where)
     star, first_row, ids = _stars(table, roles, where)
     rows = np.arange(n_rows)
     key = np.lexsort((rows, rows if mjd is None else mjd, star))
@@ -132,6 +133,25 @@ def _merge(v, err, star, n_stars):
         chi2_dof=dof,
         p_var=p_var,
     )
+
+
+def _check_unnamed_epochs(values, roles, where):
+    """Without an id column each row is a star: refuse epochs of one star (rows at exactly the
+    same ra and dec, with an mjd column) that would otherwise count as several stars."""
+    mjd = values.get("mjd")
+    if "id" in roles or mjd is None:
+        return
+    pos = np.stack([values["ra"], values["dec"]], axis=1)
+    _, first, inverse = np.unique(pos, axis=0, return_index=True, return_inverse=True)
+    inverse = inverse.ravel()
+    later = np.flatnonzero(first[inverse] != np.arange(len(inverse)))
+    if len(later):
+        r, r0 = int(later[0]), int(first[inverse[later[0]]])
+        raise InputError(
+            f"{where} rows {r0 + 1} and {r + 1} have the same ra and dec (mjd {mjd[r0]:g} and "
+            f"{mjd[r]:g}) but there is no id column: add one (or map it with --column id=NAME) "
+            "so that the epochs of a star are merged"
+        )
 
 
 def _stars(table, roles, where):

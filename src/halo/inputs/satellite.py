@@ -146,6 +146,47 @@ def _foreground(items, where):
     return tuple(out)
 
 
+#: key -> (lowest, highest, hint): values outside are refused as a likely slip of units. The range
+#: spans the Milky Way's and the Local Group's satellites and star clusters with room to spare
+#: (common practice; distances of Local Group dwarfs reach ~1.5 Mpc [memory])
+PLAUSIBLE = {
+    "distance_kpc": (1.0, 5000.0, "kpc, not pc"),
+    "galactocentric_distance_kpc": (1.0, 5000.0, "kpc, not pc"),
+    "r_half_pc": (0.1, 20000.0, "pc, not kpc"),
+    "stellar_mass_msun": (1.0, 1.0e12, "Msun"),
+}
+
+
+def _check_plausible(values, where):
+    for key, (lo, hi, hint) in PLAUSIBLE.items():
+        v = values.get(key)
+        if v is not None and not lo <= v <= hi:
+            raise InputError(
+                f"{where} key '{key}' = {v:g} is outside the plausible range {lo:g} to {hi:g} "
+                f"({hint})"
+            )
+
+
+def _check_stellar_mass(values, where):
+    """The stellar mass given once: as stellar_mass_msun, or as absolute_magnitude_v with
+    stellar_ml_v."""
+    has_mass = "stellar_mass_msun" in values
+    has_mag = "absolute_magnitude_v" in values
+    if has_mass and "stellar_ml_v" in values:  # else the M/L range would be silently ignored
+        raise InputError(
+            f"{where} keys 'stellar_mass_msun' and 'absolute_magnitude_v' with 'stellar_ml_v' "
+            "both give the stellar mass: keep one (absolute_magnitude_v alone, without "
+            "stellar_ml_v, gives the luminosity for M/L)"
+        )
+    if not has_mass and not has_mag:
+        raise InputError(
+            f"{where} give the stellar mass as 'stellar_mass_msun' or as 'absolute_magnitude_v' "
+            "with 'stellar_ml_v'"
+        )
+    if has_mag and not has_mass and "stellar_ml_v" not in values:
+        raise InputError(f"{where} key 'stellar_ml_v' is required with 'absolute_magnitude_v'")
+
+
 def parse_satellite(data, source="<memory>"):
     """Validate a mapping of satellite keys and return a :class:`Satellite`."""
     where = f"{source}:"
@@ -192,15 +233,10 @@ def parse_satellite(data, source="<memory>"):
         values["stellar_ml_v"] = (float(ml[0]), float(ml[1]))
     if "foreground" in values:
         values["foreground"] = _foreground(values["foreground"], where)
-    has_mass = "stellar_mass_msun" in values
-    has_mag = "absolute_magnitude_v" in values
-    if has_mass == has_mag and not (has_mass and has_mag):
-        raise InputError(
-            f"{where} give the stellar mass as 'stellar_mass_msun' or as 'absolute_magnitude_v' "
-            "with 'stellar_ml_v'"
-        )
-    if has_mag and not has_mass and "stellar_ml_v" not in values:
-        raise InputError(f"{where} key 'stellar_ml_v' is required with 'absolute_magnitude_v'")
+    _check_plausible(values, where)
+    _check_stellar_mass(values, where)
+    if "v_sys_err_kms" in values and "v_sys_kms" not in values:
+        raise InputError(f"{where} key 'v_sys_err_kms' needs 'v_sys_kms'")
     return Satellite(**values, source=str(source))
 
 

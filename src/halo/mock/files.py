@@ -91,23 +91,32 @@ def write_mock(
     """
     out = Path(out)
     fmt = _output_format(out)
+    if not math.isfinite(v_sys):
+        raise InputError(f"--v-sys: expected a finite velocity [km/s], got {v_sys!r}")
     sat = read_satellite(satellite_path)
-    mock, spec, values = mock_from_spec(
-        sat,
-        model,
-        values,
-        n_stars=n_stars,
-        v_sys=v_sys,
-        error_range_kms=error_range,
-        seed=seed,
-        method=method,
-        epochs_mjd=epochs_mjd,
-        repeat_fraction=repeat_fraction,
-        binary_fraction=binary_fraction,
-        n_foreground=n_foreground,
-    )
+    try:
+        mock, spec, values = mock_from_spec(
+            sat,
+            model,
+            values,
+            n_stars=n_stars,
+            v_sys=v_sys,
+            error_range_kms=error_range,
+            seed=seed,
+            method=method,
+            epochs_mjd=epochs_mjd,
+            repeat_fraction=repeat_fraction,
+            binary_fraction=binary_fraction,
+            n_foreground=n_foreground,
+        )
+    except InputError as exc:  # the library's spelling of the option -> the command's
+        raise InputError(str(exc).replace("method='gaussian'", "--method gaussian")) from None
     truth = truth_record(mock, spec, values)
-    _write_table(mock.table, out, fmt, truth)
     truth_path = out.with_suffix(out.suffix + ".truth.json")
-    write_json(truth_path, truth)
+    _write_table(mock.table, out, fmt, truth)
+    try:
+        write_json(truth_path, truth)
+    except BaseException:  # never a catalogue without its truth
+        out.unlink(missing_ok=True)
+        raise
     return out, truth_path

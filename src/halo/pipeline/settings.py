@@ -5,16 +5,26 @@ import sys
 
 import numpy as np
 
+from halo.core.errors import InputError
 from halo.core.vocabulary import DEFAULT_N_ORBITS
 
 __all__ = [
     "FitSettings",
+    "MIN_CHAINS",
+    "MIN_WARMUP",
+    "MIN_DRAWS",
     "FOREGROUND_CLIP",
     "FOREGROUND_MIN_OFFSET_KMS",
     "foreground_decision",
     "foreground_setting",
     "say",
 ]
+
+
+#: the fewest chains, warmup steps and kept draws per chain a run accepts: below MIN_DRAWS the
+#: Pareto-smoothed LOO has too few tail draws (it needs 5 or more, a fifth of the draws of a short
+#: run: arviz-stats, Vehtari et al. 2024) and NUTS adaptation has too few steps
+MIN_CHAINS, MIN_WARMUP, MIN_DRAWS = 1, 50, 50
 
 
 @dataclasses.dataclass(frozen=True)
@@ -27,6 +37,12 @@ class FitSettings:
     binaries: bool = True
     foreground: bool | str = "auto"  # True, False or "auto" (see foreground_decision)
     n_orbits: int = DEFAULT_N_ORBITS  # Monte Carlo orbits per multi-epoch star
+
+    def __post_init__(self):
+        for name, low in (("chains", MIN_CHAINS), ("warmup", MIN_WARMUP), ("draws", MIN_DRAWS)):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, int) or v < low:
+                raise InputError(f"--{name}: at least {low} needed, got {v!r}")
 
     def as_dict(self):
         keys = ("chains", "warmup", "draws", "seed", "binaries", "foreground")
