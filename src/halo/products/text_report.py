@@ -61,7 +61,9 @@ def write_summary_table(summary, path):
 def _fmt_q(q, fmt="{:.3g}"):
     if not q:
         return "-"
-    med, lo, hi = q["median"], q["p16"], q["p84"]
+    med, lo, hi = q.get("median"), q.get("p16"), q.get("p84")
+    if None in (med, lo, hi):
+        return "undefined"
     return f"{fmt.format(med)} (+{fmt.format(hi - med)} / -{fmt.format(med - lo)})"
 
 
@@ -111,28 +113,38 @@ def _headline_lines(m):
     return lines
 
 
+def _n(x, fmt=".2f"):
+    """A number of the summary, or "undefined" where summary.json holds null (a NaN or an
+    infinity, e.g. r-hat or Pareto k of a single chain)."""
+    return "undefined" if x is None else format(x, fmt)
+
+
 def _comparison_lines(m, ul):
     """A model's upper limits, evidence, comparison with stars only, LOO warning and problems."""
     lines = []
     if ul:
-        lines.append(f"  M(<r_1/2) < {ul['m_half_msun_upper95']:.3g} Msun (95% upper limit)")
+        lines.append(
+            f"  M(<r_1/2) < {_n(ul.get('m_half_msun_upper95'), '.3g')} Msun (95% upper limit)"
+        )
         if "log10_j_upper95" in ul:
-            lines.append(f"  log10 J(0.5) < {ul['log10_j_upper95']['0.5']:.2f} (95% upper limit)")
+            lines.append(
+                f"  log10 J(0.5) < {_n(ul['log10_j_upper95'].get('0.5'))} (95% upper limit)"
+            )
     ev = m["evidence"]
-    lines.append(f"  ln Z           {ev['log_z']:.2f} +- {ev['log_z_err']:.2f}")
+    lines.append(f"  ln Z           {_n(ev.get('log_z'))} +- {_n(ev.get('log_z_err'))}")
     c = m.get("vs_stars_only")
     if c:
         lines.append(
-            f"  vs stars-only: ln B = {c['ln_bayes_factor']:.2f} +- "
-            f"{c['ln_bayes_factor_err']:.2f}, delta ELPD = {c['delta_elpd']:.1f} +- "
-            f"{c['delta_elpd_se']:.1f}: {c['verdict']}"
+            f"  vs stars-only: ln B = {_n(c.get('ln_bayes_factor'))} +- "
+            f"{_n(c.get('ln_bayes_factor_err'))}, delta ELPD = {_n(c.get('delta_elpd'), '.1f')} "
+            f"+- {_n(c.get('delta_elpd_se'), '.1f')}: {c.get('verdict', '')}"
         )
     loo = m["loo"]
-    if loo["n_pareto_k_above_threshold"]:
+    if loo.get("n_pareto_k_above_threshold") or loo.get("pareto_k_max") is None:
         lines.append(
-            f"  PSIS-LOO warning: {loo['n_pareto_k_above_threshold']} stars with Pareto k > "
-            f"{loo['pareto_k_threshold']:.2f} (max {loo['pareto_k_max']:.2f}): their LOO "
-            "terms are unreliable"
+            f"  PSIS-LOO warning: {loo.get('n_pareto_k_above_threshold') or 0} stars with Pareto "
+            f"k > {_n(loo.get('pareto_k_threshold'))} (max {_n(loo.get('pareto_k_max'))}): "
+            "their LOO terms are unreliable"
         )
     for p in m.get("problems", []):
         lines.append(f"  *** {p}")
