@@ -1,6 +1,10 @@
 """Speed and accuracy of the Jeans solver against a straightforward scipy.integrate.quad version.
 
-Run:  .venv/bin/python benchmarks/bench_jeans.py [--quad-radii N]
+Run:  .venv/bin/python benchmarks/bench_jeans.py [--quad-radii N] [--prior-sweep]
+
+--prior-sweep: instead, the maximum relative error of DEFAULT and FAST against the reference over
+the shipped specs' anisotropy prior (beta / (2 - beta) from -0.95 to 0.95, beta -38 to 0.974),
+NFW and Burkert halos, 0.01-10 R_e (the levels halo/physics/jeans.py states).
 
 Model: NFW halo (rho_s = 3e7 Msun/kpc^3, r_s = 0.6 kpc) plus Plummer stars (2e4 Msun,
 R_e = 30 pc), constant beta = 0.3, sigma_los at 100 log-spaced radii from 0.01 to 10 R_e.
@@ -37,7 +41,12 @@ from halo.physics.jeans import DEFAULT, FAST, Orders, sigma_los  # noqa: E402
 from halo.physics.light import Plummer  # noqa: E402
 from halo.physics.mass import MassModel, Stars  # noqa: E402
 
-from jeans_reference import beta_np, nfw_mass_np, sigma_los_reference  # noqa: E402
+from jeans_reference import (  # noqa: E402
+    beta_np,
+    burkert_mass_np,
+    nfw_mass_np,
+    sigma_los_reference,
+)
 
 RHO_S, R_S, A, BETA, M_STAR = 3e7, 0.6, 0.03, 0.3, 2e4
 RADII = np.geomspace(0.01, 10.0, 100) * A
@@ -77,10 +86,40 @@ def timeit(fn, repeat):
     return best
 
 
+def prior_sweep():
+    """Max relative error of DEFAULT and FAST over the anisotropy prior (constant beta)."""
+    from halo.physics.dark import Burkert
+
+    radii = np.array([0.01, 0.03, 0.1, 0.3, 1.0, 3.0, 10.0]) * A
+    light = Plummer(A)
+    halos = (
+        ("nfw", NFW(RHO_S, R_S), nfw_mass_np(RHO_S, R_S)),
+        ("burkert", Burkert(2e8, 0.3), burkert_mass_np(2e8, 0.3)),
+    )
+    print(f"{'beta~':>7s}{'beta':>8s}  {'halo':<8s}{'DEFAULT':>10s}{'FAST':>10s}")
+    for bs in (-0.95, -0.9, -0.7, -0.5, 0.0, 0.5, 0.9, 0.95):
+        beta = 2 * bs / (1 + bs)
+        b, f = beta_np("constant", {"beta": beta})
+        for name, jax_halo, np_mass in halos:
+            ref = np.array([sigma_los_reference(R, np_mass, A, b, f, M_STAR) for R in radii])
+            model = MassModel((jax_halo, Stars(light, M_STAR)))
+            errs = [
+                np.max(
+                    np.abs(np.asarray(sigma_los(model, light, Constant(beta), radii, o)) / ref - 1)
+                )
+                for o in (DEFAULT, FAST)
+            ]
+            print(f"{bs:7.2f}{beta:8.2f}  {name:<8s}{errs[0]:10.1e}{errs[1]:10.1e}")
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quad-radii", type=int, default=10, help="radii timed for quad (scaled)")
+    ap.add_argument("--prior-sweep", action="store_true", help="errors over the beta prior")
     args = ap.parse_args()
+    if args.prior_sweep:
+        prior_sweep()
+        return
 
     t0 = time.perf_counter()
     b, f = beta_np("constant", {"beta": BETA})
