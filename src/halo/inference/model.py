@@ -15,8 +15,11 @@ From the spec, by prior kind:
 
 Always present (nuisances, so that their uncertainties reach every result):
 
-- ``v_sys`` [km/s]: uniform within +-100 km/s of the catalogue median (the same in every model,
-  so it cancels in Bayes factors);
+- ``v_sys`` [km/s]: Normal(v_sys_kms, v_sys_err_kms) when the satellite file gives both; else
+  uniform within +-V_SYS_HALF_WIDTH of the file's ``v_sys_kms``, or of the peak of the velocity
+  distribution of the stars near the centre (:mod:`halo.inference.systemic`; not the median of
+  the catalogue, which a rich field drags away). The same in every model, so it cancels in Bayes
+  factors;
 - ``distance`` [kpc]: Normal(distance_kpc, distance_err_kpc), truncated at 1/10 of the value;
 - ``r_half_pc`` [pc]: the projected major-axis half-light radius at the file's distance,
   Normal(r_half_pc, r_half_err_pc) truncated positive. The angular size is what is measured, so
@@ -57,6 +60,7 @@ from halo.inference.likelihood import (
     member_log_terms,
     spatial_log_prior,
 )
+from halo.inference.systemic import V_SYS_HALF_WIDTH, prior_centres
 from halo.inputs.build import build_anisotropy, build_mass_model
 from halo.physics.anisotropy import symmetrised_to_beta
 from halo.physics.concentration import lognormal_prior
@@ -64,8 +68,6 @@ from halo.physics.cosmology import rho_crit
 from halo.physics.jeans import FAST, sigma_los
 
 __all__ = ["FitData", "Foreground", "make_fit_data", "make_model", "V_SYS_HALF_WIDTH"]
-
-V_SYS_HALF_WIDTH = 100.0  # km/s
 
 
 @jax.tree_util.register_dataclass
@@ -152,15 +154,14 @@ def make_fit_data(
 class Foreground:
     """The non-member velocity distribution.
 
-    ``components``: None for one Gaussian with free mean (``v_fg``, uniform within
-    +-FG_MEAN_HALF_WIDTH of the catalogue median) and width (``log10_sigma_fg``, uniform in
+    ``components``: None for one Gaussian with free mean (``v_fg``, uniform over the range of
+    :func:`halo.inference.systemic.prior_centres`) and width (``log10_sigma_fg``, uniform in
     log10 between FG_SIGMA_RANGE), or a tuple of (mean, sigma, weight) [km/s] given by the user.
     """
 
     components: tuple | None = None
 
 
-FG_MEAN_HALF_WIDTH = 300.0  # km/s
 FG_SIGMA_RANGE = (20.0, 300.0)  # km/s: broader than any satellite's dispersion (common practice)
 
 
@@ -172,9 +173,13 @@ def _truncated_normal(name, mean, sd, low):
 
 def sample_nuisances(satellite, v_center):
     """Systemic velocity, distance, half-light radius and stellar mass (sample sites)."""
-    v_sys = numpyro.sample(
-        "v_sys", dist.Uniform(v_center - V_SYS_HALF_WIDTH, v_center + V_SYS_HALF_WIDTH)
-    )
+    v_err = getattr(satellite, "v_sys_err_kms", None)
+    if v_err is not None and v_err > 0:
+        v_sys = numpyro.sample("v_sys", dist.Normal(satellite.v_sys_kms, v_err))
+    else:
+        v_sys = numpyro.sample(
+            "v_sys", dist.Uniform(v_center - V_SYS_HALF_WIDTH, v_center + V_SYS_HALF_WIDTH)
+        )
     d0 = satellite.distance_kpc
     distance = _truncated_normal("distance", d0, satellite.distance_err_kpc, 0.1 * d0)
     r_half_pc = _truncated_normal("r_half_pc", satellite.r_half_pc, satellite.r_half_err_pc, 0.0)
@@ -302,14 +307,11 @@ def _member_block(data, var, v_sys, log_c0, log_c1, b, keep_terms):
     return member, consistency
 
 
-def _foreground_components(foreground, v_center):
+def _foreground_components(foreground, fg_range):
     """(means, sigmas, ln amplitudes) of the non-member velocity distribution: the user's
     components, or one Gaussian with free mean and width (sites ``v_fg``, ``log10_sigma_fg``)."""
     if foreground.components is None:
-        mu = numpyro.sample(
-            "v_fg",
-            dist.Uniform(v_center - FG_MEAN_HALF_WIDTH, v_center + FG_MEAN_HALF_WIDTH),
-        )
+        mu = numpyro.sample("v_fg", dist.Uniform(*fg_range))
         lo, hi = np.log10(FG_SIGMA_RANGE[0]), np.log10(FG_SIGMA_RANGE[1])
         s_fg = 10.0 ** numpyro.sample("log10_sigma_fg", dist.Uniform(lo, hi))
         return jnp.atleast_1d(mu), jnp.atleast_1d(s_fg), jnp.zeros(1)
@@ -332,8 +334,8 @@ def _membership_prior(data, light, distance):
 def _foreground_likelihood(data, foreground, member, consistency, light, distance, fixed):
     """The observed site: each star a mixture of member and non-member (``fixed``: v_center and
     keep_terms of :func:`make_model`)."""
-    v_center, keep_terms = fixed
-    means, sigmas, log_amps = _foreground_components(foreground, v_center)
+    fg_range, keep_terms = fixed
+    means, sigmas, log_amps = _foreground_components(foreground, fg_range)
     fg = consistency + foreground_log_density(data.v, data.v_err, means, sigmas, log_amps)
     lp_m, lp_n = _membership_prior(data, light, distance)
     if keep_terms:
@@ -364,7 +366,7 @@ def make_model(
     ``var_member`` = sigma_los^2 + v_err^2 at each star.
     """
     rho_c = rho_crit()
-    v_center = float(np.median(np.asarray(data.v)))
+    v_center, fg_range = prior_centres(satellite, data)
     b = None if binaries is None else _BinaryTerms.of(binaries)
     zero = jnp.zeros(data.n_stars)
     log_c0 = zero if data.log_c0 is None else data.log_c0
@@ -387,7 +389,7 @@ def make_model(
         if foreground is None:
             numpyro.sample("v", PerStarLikelihood(member), obs=data.v)
             return
-        fixed = (v_center, keep_terms)
+        fixed = (fg_range, keep_terms)
         _foreground_likelihood(data, foreground, member, consistency, light, distance, fixed)
 
     return model

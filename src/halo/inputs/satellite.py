@@ -43,6 +43,8 @@ _KEYS = {
     "galactocentric_distance_kpc": (float, False, _POSITIVE),
     "age_gyr": (float, False, ("between 0 and 14", lambda v: 0 < v <= 14)),
     "foreground": (list, False, None),
+    "v_sys_kms": (float, False, ("between -2000 and 2000", lambda v: -2000 < v < 2000)),
+    "v_sys_err_kms": (float, False, _NONNEG),
 }
 
 
@@ -69,6 +71,8 @@ class Satellite:
     galactocentric_distance_kpc: float | None = None
     age_gyr: float | None = None
     foreground: tuple | None = None
+    v_sys_kms: float | None = None
+    v_sys_err_kms: float | None = None
     source: str = dataclasses.field(default="<memory>", compare=False)
 
     @property

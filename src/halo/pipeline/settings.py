@@ -49,7 +49,7 @@ class FitSettings:
         return {k: getattr(self, k) for k in keys}
 
 
-#: a star further than this many robust widths from the median velocity is taken as a sign that
+#: a star further than this many robust widths from the velocity peak is taken as a sign that
 #: the catalogue reaches beyond the members (common practice: 5 sigma clipping)
 FOREGROUND_CLIP = 5.0
 #: ... and further than this [km/s], so that binaries of a cold system do not trigger it
@@ -61,13 +61,17 @@ def foreground_decision(stars):
 
     On when the catalogue carries a ``member_prob`` column with values below 1, or when any star
     lies more than FOREGROUND_CLIP robust widths sqrt(s^2 + err^2) (s = 1.4826 MAD of the
-    velocities, common practice) and more than FOREGROUND_MIN_OFFSET_KMS from the median.
+    velocities within V_SYS_HALF_WIDTH, common practice) and more than FOREGROUND_MIN_OFFSET_KMS
+    from the velocity peak of the inner stars (:func:`halo.inference.systemic.systemic_centre`).
     """
     if stars.member_prob is not None and np.any(np.asarray(stars.member_prob) < 1):
         return True, "the catalogue's member_prob column has values below 1"
+    from halo.inference.systemic import V_SYS_HALF_WIDTH, robust_width, systemic_centre
+
     v = np.asarray(stars.v, dtype=float)
-    med = np.median(v)
-    s = 1.4826 * np.median(np.abs(v - med))
+    # about the velocity peak of the inner stars, not the median a rich field drags away
+    med = systemic_centre(v, stars.radius_deg)
+    s = robust_width(v, med, V_SYS_HALF_WIDTH)
     off = np.abs(v - med)
     far = (off > FOREGROUND_CLIP * np.sqrt(s**2 + np.asarray(stars.v_err) ** 2)) & (
         off > FOREGROUND_MIN_OFFSET_KMS
@@ -75,11 +79,12 @@ def foreground_decision(stars):
     if far.any():
         return True, (
             f"{int(far.sum())} star(s) lie more than {FOREGROUND_CLIP:g} robust widths and "
-            f"{FOREGROUND_MIN_OFFSET_KMS:g} km/s from the median velocity"
+            f"{FOREGROUND_MIN_OFFSET_KMS:g} km/s from the velocity peak (the median velocity of "
+            "the densest window of inner stars)"
         )
     return False, (
         "every star lies within "
-        f"{FOREGROUND_CLIP:g} robust widths or {FOREGROUND_MIN_OFFSET_KMS:g} km/s of the median "
+        f"{FOREGROUND_CLIP:g} robust widths or {FOREGROUND_MIN_OFFSET_KMS:g} km/s of the peak "
         "velocity and there is no member_prob column: the catalogue looks like members only"
     )
 

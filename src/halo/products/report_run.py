@@ -7,6 +7,7 @@ from pathlib import Path
 from halo.inference.sampling import ESS_MIN, RHAT_MAX
 from halo.products.report_cells import esc, fixed, is_num, kv_table, slugify
 from halo.products.report_sources import member_counts
+from halo.results.members import LIKELY_BINARY_BAYES_FACTOR
 
 __all__ = ["diagnostics", "inputs", "notes", "BFMI_LOW"]
 
@@ -139,7 +140,8 @@ def _members_html(run_dir):
         mrows.append(("sum of membership probabilities", fixed(mem["sum_member"], 1)))
         mrows.append(("likely non-members (member_prob &lt; 0.5)", esc(mem["non_members"])))
     if "binaries" in mem:
-        mrows.append(("likely binaries (binary_prob &gt; 0.5)", esc(mem["binaries"])))
+        label = f"likely binaries (binary Bayes factor &gt; {LIKELY_BINARY_BAYES_FACTOR:g})"
+        mrows.append((label, esc(mem["binaries"])))
     if "multi_epoch" in mem:
         mrows.append(("stars with several epochs", esc(mem["multi_epoch"])))
     return kv_table(mrows, "members")

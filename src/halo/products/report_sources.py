@@ -7,6 +7,7 @@ from pathlib import Path
 
 from halo.core.errors import InputError
 from halo.core.fileio import read_input_text
+from halo.results.members import LIKELY_BINARY_BAYES_FACTOR
 
 __all__ = ["load_summary", "figure_list", "embed_png", "member_counts", "PNG_SIGNATURE"]
 
@@ -90,10 +91,13 @@ def member_counts(run_dir):
             mp = np.asarray(t["member_prob"], dtype=float)
             out["sum_member"] = float(np.nansum(mp))
             out["non_members"] = int(np.sum(mp < 0.5))
-        if "binary_prob" in t.colnames:
-            bp = np.asarray(t["binary_prob"], dtype=float)
-            if np.isfinite(bp).any():
-                out["binaries"] = int(np.sum(bp > 0.5))
+        # likely binaries on the evidence of the star's velocities (a Bayes factor), not on
+        # binary_prob, which for a single-epoch star restates the binary fraction; folders from
+        # before that column get no count
+        if "binary_bayes_factor" in t.colnames:
+            bf = np.asarray(t["binary_bayes_factor"], dtype=float)
+            if np.isfinite(bf).any():
+                out["binaries"] = int(np.sum(bf > LIKELY_BINARY_BAYES_FACTOR))
         if "n_epochs" in t.colnames:
             out["multi_epoch"] = int(np.sum(np.asarray(t["n_epochs"]) > 1))
         return out, None

@@ -5,33 +5,37 @@ import numpy as np
 
 from halo.core.vocabulary import ESTIMATOR_NAMES, estimator_key
 from halo.physics.estimators import ESTIMATOR_RADIUS, dispersion_ml, propagate
+from halo.results.members import LIKELY_BINARY_BAYES_FACTOR
 
 __all__ = ["estimators"]
 
 
-def _selection(n_stars, member_prob, binary_prob):
+def _selection(n_stars, member_prob, binary_bf):
     """(mask of the stars used, words for the selection)."""
     use = np.ones(n_stars, dtype=bool)
     why = []
     if member_prob is not None:
         use &= np.asarray(member_prob) >= 0.5
         why.append("member_prob >= 0.5")
-    if binary_prob is not None:
-        use &= np.asarray(binary_prob) <= 0.5
-        why.append("binary_prob <= 0.5")
+    if binary_bf is not None:
+        use &= np.asarray(binary_bf) <= LIKELY_BINARY_BAYES_FACTOR
+        why.append(f"binary Bayes factor <= {LIKELY_BINARY_BAYES_FACTOR:g}")
     if use.sum() < 3:
         use[:] = True
         why = ["all stars (fewer than 3 pass the selection)"]
     return use, " and ".join(why) if why else "all stars"
 
 
-def estimators(stars, satellite, member_prob=None, binary_prob=None):
+def estimators(stars, satellite, member_prob=None, binary_bf=None):
     """The classic mass estimators from the global dispersion of the likely single members.
 
     With a foreground model, stars with posterior member_prob < 0.5 are left out; with binaries,
-    stars with binary_prob > 0.5 (velocity variables) too. The estimators assume neither.
+    stars whose velocities favour binarity by a Bayes factor above LIKELY_BINARY_BAYES_FACTOR
+    (``binary_bf``, :func:`halo.results.members.binary_bayes_factor`: evidence of variability,
+    not binary_prob, which for a single-epoch star restates the binary fraction) too. The
+    estimators assume neither.
     """
-    use, selection = _selection(stars.n_stars, member_prob, binary_prob)
+    use, selection = _selection(stars.n_stars, member_prob, binary_bf)
     fit = dispersion_ml(np.asarray(stars.v)[use], np.asarray(stars.v_err)[use])
     r_e = satellite.r_half_circ_kpc
     # r_half_err_pc is the error at fixed distance (angular error x distance_kpc); the distance

@@ -7,7 +7,19 @@ from halo.core.batching import map_draws
 from halo.core.fileio import write_ecsv
 from halo.core.vocabulary import STARS_ONLY
 
-__all__ = ["star_probabilities", "members_table", "write_members"]
+__all__ = [
+    "LIKELY_BINARY_BAYES_FACTOR",
+    "binary_bayes_factor",
+    "star_probabilities",
+    "members_table",
+    "write_members",
+]
+
+#: a star is a likely binary when the data favour binarity by this Bayes factor: its posterior
+#: odds of being a binary over the prior odds f_b / (1 - f_b) (Jeffreys 1961, "substantial"
+#: evidence; common practice). A single-epoch star near v_sys has a factor near or below 1 however
+#: large the binary fraction: binary_prob alone restates the prior.
+LIKELY_BINARY_BAYES_FACTOR = 3.0
 
 #: the per-star terms recorded by a model built with ``keep_terms=True``
 _TERM_SITES = (
@@ -65,11 +77,29 @@ def star_probabilities(terms_model, samples, latent, batch=256):
     return {"member_prob": means.get("p_member"), "binary_prob": means.get("p_binary")}
 
 
+def binary_bayes_factor(res):
+    """Per star, the Bayes factor for binarity of a model result (``binary_prob`` and the draws
+    of ``f_binary``), or None when binaries are not modelled.
+
+    [p / (1 - p)] / [f / (1 - f)] with p the posterior binary probability and f the posterior
+    mean binary fraction: the evidence of the star's own velocities, the prior odds divided out.
+    """
+    p = res.get("binary_prob")
+    if p is None or "f_binary" not in res["samples"]:
+        return None
+    p = np.clip(np.asarray(p, dtype=float), 1e-12, 1 - 1e-12)
+    f = float(np.clip(np.mean(res["samples"]["f_binary"]), 1e-12, 1 - 1e-12))
+    return (p / (1 - p)) / (f / (1 - f))
+
+
 _MEMBERS_NOTE = (
     "member_prob: posterior membership probability under model '{ref}' (1 when the "
     "foreground is not modelled, or the catalogue's member_prob when given and not modelled); "
     "member_prob_prior: the catalogue's column; binary_prob: posterior probability of being a "
-    "binary if a member (NaN when binaries are not modelled); radius_pc: circularised, at the "
+    "binary if a member (NaN when binaries are not modelled); binary_bayes_factor: its posterior "
+    "odds over the prior odds of the fitted binary fraction (a likely binary above "
+    f"{LIKELY_BINARY_BAYES_FACTOR:g}: evidence of variability, not the prior); "
+    "radius_pc: circularised, at the "
     "satellite file's distance; v_mean_kms: inverse-variance weighted mean over the epochs; "
     "binary_mc_ess: effective number of Monte Carlo orbits behind the multi-epoch binary term"
 )
@@ -93,6 +123,8 @@ def members_table(stars, results, names, satellite):
         t["member_prob_prior"] = np.asarray(stars.member_prob, dtype=float)
     bp = res["binary_prob"]
     t["binary_prob"] = np.full(stars.n_stars, np.nan) if bp is None else bp
+    bf = binary_bayes_factor(res)
+    t["binary_bayes_factor"] = np.full(stars.n_stars, np.nan) if bf is None else bf
     t["radius_deg"] = np.asarray(stars.radius_deg)
     t["radius_pc"] = np.tan(np.radians(np.asarray(stars.radius_deg))) * satellite.distance_kpc * 1e3
     t["n_epochs"] = np.asarray(stars.n_epochs)

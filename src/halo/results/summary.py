@@ -15,6 +15,7 @@ from halo.results.comparison import compare
 from halo.results.derived import PROFILE_RADII_PC
 from halo.results.dispersion import resolution, upper_limits
 from halo.results.estimators import estimators
+from halo.results.members import binary_bayes_factor
 
 __all__ = ["model_summary", "build_summary", "clean"]
 
@@ -137,7 +138,7 @@ def _head(stars, satellite, settings, foreground, ref):
             "source": str(stars.source),
         },
         "settings": {**settings.as_dict(), "foreground": fg_on, "foreground_reason": fg_reason},
-        "estimators": estimators(stars, satellite, ref["member_prob"], ref["binary_prob"]),
+        "estimators": estimators(stars, satellite, ref["member_prob"], binary_bayes_factor(ref)),
         "models": {},
         "notes": list(stars.notes),
         "warnings": list(stars.warnings),
