@@ -17,6 +17,11 @@ from halo.cli.options import (
 
 __all__ = ["models_cmd", "predict_cmd", "fit_cmd", "demo_cmd", "mock_cmd"]
 
+ANISO_HELP = (
+    "anisotropy of every model instead of its spec's: constant, osipkov-merritt, "
+    "baes-van-hese (default priors: `halo models`), or spec"
+)
+
 
 def models_cmd(
     json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
@@ -40,11 +45,13 @@ def predict_cmd(
     set_: list[str] = typer.Option(None, "--set", help="parameter value, KEY=VALUE (repeatable)"),
     radii_pc: str = typer.Option(None, "--radii-pc", help="comma-separated projected radii [pc]"),
     angles_deg: str = typer.Option(None, "--angles-deg", help="comma-separated cone angles [deg]"),
+    anisotropy: str = typer.Option(None, "--anisotropy", help=ANISO_HELP),
     json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
 ):
     """Velocity dispersion, enclosed mass, J and D of one model at given parameters."""
     from halo.inputs.satellite import read_satellite
     from halo.inputs.spec import load_spec
+    from halo.inputs.spec_anisotropy import with_anisotropy
     from halo.pipeline.predict import predict
     from halo.products.console import format_prediction
 
@@ -52,7 +59,7 @@ def predict_cmd(
     radii = parse_list(radii_pc, "--radii-pc")
     angles = parse_angles(angles_deg, "--angles-deg")
     sat = read_satellite(satellite_path(satellite))
-    spec = load_spec(model)
+    spec = with_anisotropy(load_spec(model), anisotropy)
     res = predict(spec, sat, values, radii, angles)
     if json_out:
         typer.echo(json.dumps(res))
@@ -103,10 +110,12 @@ def fit_cmd(
         help="mix members with a broad non-member velocity distribution; default: on when the "
         "catalogue reaches beyond the members (member_prob column or far velocity outliers)",
     ),
+    anisotropy: str = typer.Option(None, "--anisotropy", help=ANISO_HELP),
     quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
 ):
     """Fit the models to a catalogue and compare each with stars alone."""
     from halo.inputs.spec import load_spec
+    from halo.inputs.spec_anisotropy import with_anisotropy
     from halo.pipeline.fit import DEFAULT_MODELS, FitSettings, fit
     from halo.products.text_report import format_summary
 
@@ -118,11 +127,12 @@ def fit_cmd(
         progress=not quiet,
         binaries=binaries,
         foreground="auto" if foreground is None else foreground,
+        anisotropy=anisotropy,
     )
     out_dir = check_out_dir(out, overwrite)
     models = list(model) if model else list(DEFAULT_MODELS)
     for name in models:  # every spec checked before the catalogue is read
-        load_spec(name)
+        with_anisotropy(load_spec(name), settings.anisotropy)
     sat_path, sat, stars = _read_inputs(catalogue, satellite, column)
     summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)
     typer.echo(format_summary(summary, out_dir))
@@ -187,6 +197,7 @@ def mock_cmd(
     old_foreground: int = typer.Option(
         None, "--foreground", hidden=True, help="old name of --n-foreground (one version)"
     ),
+    anisotropy: str = typer.Option(None, "--anisotropy", help=ANISO_HELP),
 ):
     """A mock catalogue with a known truth (written beside it as JSON)."""
     from halo.mock.files import write_mock
@@ -218,5 +229,6 @@ def mock_cmd(
         repeat_fraction=repeat_fraction,
         binary_fraction=binary_fraction,
         n_foreground=n_foreground,
+        anisotropy=anisotropy,
     )
     typer.echo(format_mock_written(path, truth_path, n_stars, n_foreground))

@@ -60,6 +60,12 @@ def refit_cmd(
     model: list[str] = typer.Option(
         None, "--model", help="add or update a model spec (name or path; repeatable)"
     ),
+    anisotropy: str = typer.Option(
+        None,
+        "--anisotropy",
+        help="anisotropy of every model instead of its spec's: constant, osipkov-merritt, "
+        "baes-van-hese, or spec (default: as last run)",
+    ),
     quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
 ):
     """Fit what changed since the last run (unchanged models are reused, others warm-started).
@@ -82,6 +88,7 @@ def refit_cmd(
         seed=seed,
         binaries=binaries,
         foreground=foreground,
+        anisotropy=anisotropy,
         progress=not quiet,
     )
 

@@ -13,6 +13,7 @@ from halo.inputs.build import build_anisotropy, build_dark, check_values
 from halo.inputs.catalogue import FORMATS
 from halo.inputs.satellite import read_satellite
 from halo.inputs.spec import load_spec
+from halo.inputs.spec_anisotropy import with_anisotropy
 from halo.mock.catalogue import make_mock
 from halo.physics.cosmology import rho_crit
 
@@ -33,11 +34,12 @@ def _output_format(out):
     return fmt
 
 
-def mock_from_spec(sat, model, values, **options):
+def mock_from_spec(sat, model, values, anisotropy=None, **options):
     """(mock, spec, checked values): :func:`halo.mock.catalogue.make_mock` of the halo and
     anisotropy a spec (name or path) gives at ``values`` (the satellite's stellar mass unless
-    ``stellar_mass`` is among them); ``options`` go to make_mock."""
-    spec = load_spec(model)
+    ``stellar_mass`` is among them); ``anisotropy``: a kind replacing the spec's; ``options``
+    go to make_mock."""
+    spec = with_anisotropy(load_spec(model), anisotropy)
     values = dict(values)
     values.setdefault("stellar_mass", sat.stellar_mass_prior()[0])
     values = check_values(spec, values)
@@ -84,6 +86,7 @@ def write_mock(
     repeat_fraction=1.0,
     binary_fraction=0.0,
     n_foreground=0,
+    anisotropy=None,
 ):
     """``halo mock``: draw a mock from a spec at given parameter values and write it.
 
@@ -108,6 +111,7 @@ def write_mock(
             repeat_fraction=repeat_fraction,
             binary_fraction=binary_fraction,
             n_foreground=n_foreground,
+            anisotropy=anisotropy,
         )
     except InputError as exc:  # the library's spelling of the option -> the command's
         raise InputError(str(exc).replace("method='gaussian'", "--method gaussian")) from None

@@ -22,6 +22,7 @@ from halo.core.errors import InputError
 from halo.core.fileio import write_json
 from halo.core.vocabulary import DEFAULT_MODELS, STARS_ONLY
 from halo.inputs.spec import load_spec
+from halo.inputs.spec_anisotropy import with_anisotropy
 from halo.pipeline.likelihoods import Likelihoods
 from halo.pipeline.model_run import run_model
 from halo.pipeline.settings import FitSettings, foreground_setting, say
@@ -31,11 +32,14 @@ from halo.results.summary import build_summary, clean
 __all__ = ["FitSettings", "DEFAULT_MODELS", "fit"]
 
 
-def _specs(models):
-    """{name: spec} of ``models`` (names or paths) in the order given, stars-only added last."""
+def _specs(models, anisotropy=None):
+    """{name: spec} of ``models`` (names or paths) in the order given, stars-only added last;
+    ``anisotropy``: a kind that replaces every spec's own (stars-only's too, so that the
+    comparison is like with like)."""
     loaded = [load_spec(n) for n in dict.fromkeys(models)]
     if STARS_ONLY not in [s.name for s in loaded]:
         loaded.append(load_spec(STARS_ONLY))
+    loaded = [with_anisotropy(s, anisotropy) for s in loaded]
     names = [s.name for s in loaded]
     if len(set(names)) != len(names):
         raise InputError("--model: two specs share the same name")
@@ -139,7 +143,7 @@ def fit(
     reuse, warm = reuse or {}, warm or {}
     settings = FitSettings() if settings is None else settings
     out_dir = Path(out_dir)
-    specs = _specs(models)
+    specs = _specs(models, settings.anisotropy)
     fg_on, fg_reason = foreground_setting(stars, settings)
     say(f"foreground {'ON' if fg_on else 'off'}: {fg_reason}", settings)
     say(f"binaries {'ON' if settings.binaries else 'off'}", settings)

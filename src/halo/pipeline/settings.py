@@ -7,6 +7,7 @@ import numpy as np
 
 from halo.core.errors import InputError
 from halo.core.vocabulary import DEFAULT_N_ORBITS
+from halo.inputs.spec_anisotropy import check_anisotropy
 
 __all__ = [
     "FitSettings",
@@ -37,16 +38,21 @@ class FitSettings:
     binaries: bool = True
     foreground: bool | str = "auto"  # True, False or "auto" (see foreground_decision)
     n_orbits: int = DEFAULT_N_ORBITS  # Monte Carlo orbits per multi-epoch star
+    anisotropy: str | None = None  # a kind replacing every spec's anisotropy; None: each its own
 
     def __post_init__(self):
         for name, low in (("chains", MIN_CHAINS), ("warmup", MIN_WARMUP), ("draws", MIN_DRAWS)):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, int) or v < low:
                 raise InputError(f"--{name}: at least {low} needed, got {v!r}")
+        object.__setattr__(self, "anisotropy", check_anisotropy(self.anisotropy))
 
     def as_dict(self):
         keys = ("chains", "warmup", "draws", "seed", "binaries", "foreground")
-        return {k: getattr(self, k) for k in keys}
+        out = {k: getattr(self, k) for k in keys}
+        if self.anisotropy is not None:  # absent otherwise: earlier runs' settings stay equal
+            out["anisotropy"] = self.anisotropy
+        return out
 
 
 #: a star further than this many robust widths from the velocity peak is taken as a sign that

@@ -50,7 +50,22 @@ def format_models(specs):
             "velocity, distance and half-light radius"
         )
         lines.append("")
+    lines += _anisotropy_kinds()
     return "\n".join(lines)
+
+
+def _anisotropy_kinds():
+    """The kinds `--anisotropy KIND` puts in place of a spec's anisotropy, with their priors."""
+    from halo.inputs.spec_anisotropy import ANISOTROPY_PRIORS
+
+    lines = ["anisotropy kinds (fit, refit, predict, mock: --anisotropy KIND replaces a spec's):"]
+    for kind, params in ANISOTROPY_PRIORS.items():
+        lines.append(f"  {kind}")
+        for name, p in params.items():
+            bits = [f"{k}={v}" for k, v in p.items() if k not in ("prior", "doc", "unit")]
+            unit = f" [{p['unit']}]" if "unit" in p else ""
+            lines.append(f"    {name:<10s}{unit:<14s} {p['prior']}({', '.join(bits)})")
+    return lines
 
 
 def format_prediction(res, sat):

@@ -105,6 +105,7 @@ def model_spec(name, source, where):
 def read_run(run_dir):
     """(summary, satellite, {model: spec}) of a fit output folder, dark models only."""
     from halo.inputs.satellite import parse_satellite
+    from halo.inputs.spec_anisotropy import with_anisotropy
 
     summary = read_summary(run_dir)
     path = Path(run_dir) / SUMMARY_NAME
@@ -114,6 +115,7 @@ def read_run(run_dir):
         if name == STARS_ONLY:
             continue
         spec = model_spec(name, entry.get("spec_source"), path)
+        spec = with_anisotropy(spec, summary.get("settings", {}).get("anisotropy"))
         if spec.has_dark:
             specs[name] = spec
     if not specs:

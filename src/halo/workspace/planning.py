@@ -23,15 +23,17 @@ def _same_inputs(run, name, sha, catalogue, satellite, settings):
 
 def _candidate(ws, runs, name, sha, inputs, force):
     """("reuse", folder) of the newest run with identical inputs for this model and a posterior
-    (not with ``force``); else ("warm", folder) of the newest with the same spec and a
-    posterior; else ("fit", None)."""
+    (not with ``force``); else ("warm", folder) of the newest with the same spec, the same
+    anisotropy choice and a posterior; else ("fit", None)."""
     catalogue, satellite, settings = inputs
     for r in [] if force else reversed(runs):
         same = _same_inputs(r, name, sha, catalogue, satellite, settings)
         if same and posterior_path(ws.runs / r["folder"], name).is_file():
             return "reuse", r["folder"]
+    kind = settings.get("anisotropy")  # another anisotropy is another model: no warm start
     for r in reversed(runs):
-        if r["specs"].get(name) == sha and posterior_path(ws.runs / r["folder"], name).is_file():
+        same_spec = r["specs"].get(name) == sha and r["settings"].get("anisotropy") == kind
+        if same_spec and posterior_path(ws.runs / r["folder"], name).is_file():
             return "warm", r["folder"]
     return "fit", None
 

@@ -198,5 +198,7 @@ def last_settings(root, **overrides):
     runs = ws.runs_list()
     base = dict(runs[-1]["settings"]) if runs else {}
     base.update({k: v for k, v in overrides.items() if v is not None})
+    if base.get("anisotropy") == "spec":  # back to each spec's own anisotropy
+        del base["anisotropy"]
     fields = {f for f in FitSettings.__dataclass_fields__}
     return FitSettings(**{k: v for k, v in base.items() if k in fields})
