@@ -7,9 +7,11 @@ import base64
 import copy
 import hashlib
 import io
+import math
 import re
 
 import pytest
+from astropy.table import Table
 from html_setup import NAME, Page, assert_printed, copy_run, fitted_run, row_cells, write_report
 from PIL import Image
 
@@ -164,6 +166,25 @@ def test_caveats_in_plain_words(run):
     for word in ("spherical", "equilibrium", "prior", "bayes factor", "binar", "foreground"):
         assert word in caveats, word
     assert "anisotropy" in caveats and "degenera" in caveats
+    # J and D: untruncated haloes, and the 2 R_e/d angle is the projected radius's
+    assert "untruncated" in caveats and "circularised projected half-light radius" in caveats
+
+
+def test_summary_states_the_jd_conventions(run):
+    conv = run["summary"]["jd_conventions"]
+    assert "untruncated" in conv["halo_truncation"]
+    assert "circularised projected half-light radius" in conv["2rh"]
+    page, s = run["page"], run["summary"]
+    ang = s["models"]["nfw"]["derived"]["angle_2rh_deg"]["median"]
+    # 2 R_e / d with R_e = r_half sqrt(1 - e) d / d0: the angle is 2 r_half sqrt(1 - e) / d0, the
+    # projected circularised radius's (the 3-D r_1/2 would give 1.305 times more for Plummer)
+    sat = s["satellite"]
+    r_half = s["models"]["nfw"]["parameters"]["r_half_pc"]["median"] * 1e-3
+    expect = 2 * r_half * math.sqrt(1 - sat.get("ellipticity", 0.0)) / sat["distance_kpc"]
+    assert ang == pytest.approx(math.degrees(expect), rel=0.02)
+    assert "2 Re/d" in page.text_of("sec-models")
+    table = Table.read(run["dir"] / "summary.ecsv", format="ascii.ecsv")
+    assert table.meta["jd_conventions"] == conv
 
 
 def test_every_figure_embedded_as_png_with_caption(run):

@@ -55,6 +55,8 @@ def write_summary_table(summary, path):
         m: v.get("vs_stars_only") for m, v in summary["models"].items() if "vs_stars_only" in v
     }
     t.meta["evidence"] = {m: v["evidence"] for m, v in summary["models"].items()}
+    if summary.get("jd_conventions"):  # what "2rh" means, untruncated haloes
+        t.meta["jd_conventions"] = summary["jd_conventions"]
     write_ecsv(path, t)
 
 

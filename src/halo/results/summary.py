@@ -10,7 +10,7 @@ import numpy as np
 
 from halo import __version__
 from halo.core.quantiles import quantiles
-from halo.core.vocabulary import STARS_ONLY, angle_keys
+from halo.core.vocabulary import JD_CONVENTIONS, STARS_ONLY, angle_keys
 from halo.results.comparison import compare
 from halo.results.derived import PROFILE_RADII_PC
 from halo.results.dispersion import resolution, upper_limits
@@ -57,9 +57,7 @@ def _derived(res):
         keys = angle_keys()
         derived["log10_j"] = {k: quantiles(der["log10_j"][:, i]) for i, k in enumerate(keys)}
         derived["log10_d"] = {k: quantiles(der["log10_d"][:, i]) for i, k in enumerate(keys)}
-        derived["angle_2rh_deg"] = quantiles(
-            2 * der["r_half_3d_pc"] * 1e-3 / res["samples"]["distance"] * 180 / np.pi
-        )
+        derived["angle_2rh_deg"] = quantiles(der["angle_2rh_deg"])
         derived["dark_mass_half_msun"] = quantiles(der["dark_mass_half_msun"])
         derived["log_slope_half"] = quantiles(der["log_slope_half"])
     prof = {"radii_pc": list(PROFILE_RADII_PC)}
@@ -198,5 +196,6 @@ def build_summary(stars, satellite, settings, foreground, results, specs, satell
     if satellite_path is not None:
         summary["satellite_sha256"] = hashlib.sha256(Path(satellite_path).read_bytes()).hexdigest()
     summary["models"], warnings = _models(results, names, specs)
+    summary["jd_conventions"] = dict(JD_CONVENTIONS)
     summary["warnings"].extend(warnings)
     return clean(summary)
