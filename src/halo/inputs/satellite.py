@@ -3,7 +3,8 @@
 The keys are a contract (see the project's design notes); unknown keys, missing required keys and
 non-physical values raise :class:`halo.core.errors.InputError` with one line naming the file and
 key. A light profile's shape parameters come from the keys its class declares
-(``satellite_keys``, e.g. ``king_concentration`` for the King profile).
+(``satellite_keys``, e.g. ``king_concentration`` for the King profile). ``age_gyr`` is read and
+checked (0-14 Gyr) but used by no model or output yet.
 """
 
 import dataclasses
@@ -69,7 +70,7 @@ class Satellite:
     absolute_magnitude_v_err: float = 0.0
     stellar_ml_v: tuple | None = None
     galactocentric_distance_kpc: float | None = None
-    age_gyr: float | None = None
+    age_gyr: float | None = None  # read and checked (0-14 Gyr) but used by no model yet
     foreground: tuple | None = None
     v_sys_kms: float | None = None
     v_sys_err_kms: float | None = None
