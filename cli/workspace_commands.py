@@ -44,6 +44,9 @@ def add_cmd(
     typer.echo(format_added(r))
 
 
+_SATELLITE_HELP = "use this satellite file from now on (default: re-read the recorded one)"
+
+
 def refit_cmd(
     workspace: str = typer.Argument(..., help="workspace folder"),
     chains: int = typer.Option(None, "--chains", help="number of chains (default: as last run)"),
@@ -60,6 +63,7 @@ def refit_cmd(
     model: list[str] = typer.Option(
         None, "--model", help="add or update a model spec (name or path; repeatable)"
     ),
+    satellite: str = typer.Option(None, "--satellite", help=_SATELLITE_HELP),
     anisotropy: str = typer.Option(
         None,
         "--anisotropy",
@@ -71,7 +75,8 @@ def refit_cmd(
     """Fit what changed since the last run (unchanged models are reused, others warm-started).
 
     Options left out keep the values of the workspace's last run (the defaults of `halo fit`
-    before the first run).
+    before the first run). The satellite file recorded by `halo init` (or --satellite) is read
+    again: content edited since is recorded as a new satellite version and refit.
     """
     from halo.products.rundir import read_summary
     from halo.products.text_report import format_summary
@@ -97,7 +102,12 @@ def refit_cmd(
             typer.echo(msg, err=True)
 
     folder, message = refit(
-        workspace, settings, force=force, say=say, models=list(model) if model else None
+        workspace,
+        settings,
+        force=force,
+        say=say,
+        models=list(model) if model else None,
+        satellite=None if satellite is None else satellite_path(satellite),
     )
     typer.echo(format_summary(read_summary(folder), folder))
     typer.echo(message)
