@@ -3,6 +3,7 @@ column, every batch with or without epochs alike, small batches, objects verifie
 one-line errors (exit 2) for a workspace folder, lock or record that is not what it should be."""
 
 import sqlite3
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -155,3 +156,19 @@ def test_record_missing_a_table(ws, capsys):
     con.close()
     code, _, err = run(capsys, "status", ws)
     assert code == 2 and "the workspace record is damaged" in err
+
+
+def test_refit_satellite_option_records_another_file(ws, tmp_path, capsys):
+    from halo.workspace.create import current_satellite
+
+    other = tmp_path / "other.toml"
+    other.write_text(Path(demo_satellite_path()).read_text() + "\n# moved\n")
+    # no catalogue yet: the refit stops there, after recording the satellite file
+    code, _, err = run(capsys, "refit", ws, "--satellite", other, "--quiet")
+    assert code == 2 and "no catalogue yet" in err
+    w = open_workspace(ws)
+    assert w.latest_satellite()["seq"] == 2
+    assert w.latest_satellite()["source"] == str(other.resolve())
+    other.write_text(other.read_text() + "# edited again\n")
+    cur = current_satellite(w)  # the recorded path is the one re-read from now on
+    assert cur["changed"] and str(other.resolve()) in cur["note"]
