@@ -72,8 +72,10 @@ def _is_usage_error(exc):
 def main(argv=None):
     """Console entry point: maps bad input to exit 2 with one line, internal errors to exit 1."""
     _configure_environment()
+    from halo.core import interrupt
     from halo.core.errors import InputError
 
+    interrupt.arm()
     try:
         code = app(args=argv, standalone_mode=False)
     except KeyboardInterrupt:  # before or after the command ran

@@ -2,6 +2,7 @@
 
 import json
 import math
+import shutil
 
 import typer
 
@@ -134,7 +135,13 @@ def fit_cmd(
     for name in models:  # every spec checked before the catalogue is read
         with_anisotropy(load_spec(name), settings.anisotropy)
     sat_path, sat, stars = _read_inputs(catalogue, satellite, column)
-    summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)
+    created = not out_dir.exists()
+    try:
+        summary = fit(stars, sat, out_dir, models, settings, satellite_path=sat_path)
+    except KeyboardInterrupt:  # the folder this run made goes; an --overwrite one stays
+        if created:
+            shutil.rmtree(out_dir, ignore_errors=True)
+        raise
     typer.echo(format_summary(summary, out_dir))
 
 

@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
+from halo.core import interrupt
 from halo.core.errors import InputError
 from halo.core.fileio import write_json
 from halo.core.vocabulary import DEFAULT_MODELS, STARS_ONLY
@@ -156,12 +157,16 @@ def fit(
     }
     results = {}
     for n in [STARS_ONLY] + [m for m in specs if m != STARS_ONLY]:
+        interrupt.check()
         results[n] = run_model(n, specs[n], ctx, reuse=reuse.get(n), warm=warm.get(n))
+        interrupt.check()
     summary = build_summary(
         stars, satellite, settings, (fg_on, fg_reason), results, specs, satellite_path
     )
     summary["comparison"] = clean(shared_settings(specs, settings, (fg_on, fg_reason), satellite))
     if not summary["dispersion"]["resolved"]:
         say("WARNING: " + summary["dispersion"]["message"], settings)
+    interrupt.check()
     _write_outputs(out_dir, summary, results, stars, satellite, ctx)
+    interrupt.check()
     return summary

@@ -11,6 +11,7 @@ import os
 import shutil
 import time
 
+from halo.core import interrupt
 from halo.core.fileio import atomic_path, write_text
 from halo.workspace.create import record_satellite, set_models, sync_satellite
 from halo.workspace.planning import plan as make_plan
@@ -138,6 +139,7 @@ def _run(ws, plan, settings, seq, force, say):
             "catalogue_version_sha256": plan["catalogue"]["sha256"],
         }
         write_text(partial / "workspace_run.json", json.dumps(summary_ws, indent=1) + "\n")
+        interrupt.check()  # a Ctrl-C swallowed during the fit still stops the refit here
     except BaseException:
         shutil.rmtree(partial, ignore_errors=True)
         raise
