@@ -30,7 +30,8 @@ Always present (nuisances, so that their uncertainties reach every result):
   from a magnitude, ``ml_v`` uniform in ``stellar_ml_v`` times L_V with ``abs_mag_v`` ~ Normal.
   It is taken at the file's distance d0; strictly it scales as (distance / d0)^2 like the
   luminosity (common practice), which the derived M/L applies to L_V but the dynamical model
-  does not yet apply to the stars' mass (a first attempt left a chain stuck in a test fit).
+  does not yet apply to the stars' mass (withdrawn while a stuck test chain was traced; the
+  cause was elsewhere, and the rescaling is to return with its test).
 
 Likelihood
 ----------
