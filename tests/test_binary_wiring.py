@@ -83,7 +83,7 @@ def _model_terms(n_orbits):
         "v_sys": V_SYS,
         "distance": SAT["distance_kpc"],
         "r_half_pc": 30.0,
-        "m_star": 3000.0,
+        "m_star_d0": 3000.0,
         "log10_m200": 9.0,
         "log10_c200": 1.2,
         "beta_sym": 0.0,

@@ -83,16 +83,16 @@ def test_ml_scales_as_one_over_distance():
         {"absolute_magnitude_v": -4.5, "absolute_magnitude_v_err": 0.2, "stellar_ml_v": [1, 3]},
     ],
 )
-def test_model_half_light_radius_scales_with_distance(mass_form):
+def test_model_stellar_mass_scales_as_distance_squared(mass_form):
     base = {k: v for k, v in SAT.items() if k not in ("absolute_magnitude_v", "stellar_ml_v")}
     base.pop("absolute_magnitude_v_err")
     sat = parse_satellite({**base, **mass_form})
     data = make_fit_data([1.0, 2.0, -1.0], [1.0, 1.0, 1.0], [0.01, 0.02, 0.03])
     model = make_model(load_spec("stars-only"), sat, data)
-    fixed = {"distance": 72.0, "m_star": 5000.0, "ml_v": 2.0, "abs_mag_v": -4.5}
+    fixed = {"distance": 72.0, "m_star_d0": 5000.0, "ml_v": 2.0, "abs_mag_v": -4.5}
     tr = handlers.trace(handlers.substitute(handlers.seed(model, 0), data=fixed)).get_trace()
-    # the angular size is measured: R_e = r_half_pc x distance / distance_kpc (the stars' mass
-    # is not rescaled with distance yet: see halo.inference.model's notes)
+    m0 = 5000.0 if "stellar_mass_msun" in mass_form else 2.0 * luminosity_v(-4.5)
+    assert float(tr["m_star"]["value"]) == pytest.approx(m0 * 1.2**2, rel=1e-12)
     r_e = float(tr["r_e_kpc"]["value"])
     assert r_e == pytest.approx(float(tr["r_half_pc"]["value"]) * 1e-3 * 1.2, rel=1e-12)
 

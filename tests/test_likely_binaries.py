@@ -66,7 +66,7 @@ def binary_mock(tmp_path_factory):
         "v_sys": np.full(n, 50.0),
         "distance": np.full(n, SAT["distance_kpc"]),
         "r_half_pc": np.full(n, SAT["r_half_pc"]),
-        "m_star": np.full(n, SAT["stellar_mass_msun"]),
+        "m_star_d0": np.full(n, SAT["stellar_mass_msun"]),
         "beta_sym": np.zeros(n),
         "f_binary": np.full(n, F_B),
     }

@@ -26,12 +26,10 @@ Always present (nuisances, so that their uncertainties reach every result):
   the physical circularised radius is r_half_pc sqrt(1 - e) x distance / distance_kpc, and
   r_half_err_pc is read as the error at fixed distance (the angular error x distance_kpc), so
   the distance error enters once, through ``distance``;
-- the stellar mass [Msun]: ``m_star`` ~ Normal(stellar_mass_msun, err) truncated positive, or,
-  from a magnitude, ``ml_v`` uniform in ``stellar_ml_v`` times L_V with ``abs_mag_v`` ~ Normal.
-  It is taken at the file's distance d0; strictly it scales as (distance / d0)^2 like the
-  luminosity (common practice), which the derived M/L applies to L_V but the dynamical model
-  does not yet apply to the stars' mass (withdrawn while a stuck test chain was traced; the
-  cause was elsewhere, and the rescaling is to return with its test).
+- the stellar mass [Msun]: ``m_star_d0`` ~ Normal(stellar_mass_msun, err) truncated positive, or,
+  from a magnitude, ``ml_v`` uniform in ``stellar_ml_v`` times L_V with ``abs_mag_v`` ~ Normal;
+  both hold at the file's distance d0 (a luminosity, and a stellar mass inferred from one, scale
+  as distance^2, common practice), so the mass used, ``m_star``, is that times (distance / d0)^2.
 
 Likelihood
 ----------
@@ -189,16 +187,19 @@ def sample_nuisances(satellite, v_center):
     d0 = satellite.distance_kpc
     distance = _truncated_normal("distance", d0, satellite.distance_err_kpc, 0.1 * d0)
     r_half_pc = _truncated_normal("r_half_pc", satellite.r_half_pc, satellite.r_half_err_pc, 0.0)
+    # the file's luminosity and stellar mass hold at its distance d0: at d they scale as (d/d0)^2
+    lum_scale = (distance / d0) ** 2
     if satellite.stellar_mass_msun is not None:
-        m_star = _truncated_normal(
-            "m_star", satellite.stellar_mass_msun, satellite.stellar_mass_err_msun, 0.0
+        m0 = _truncated_normal(
+            "m_star_d0", satellite.stellar_mass_msun, satellite.stellar_mass_err_msun, 0.0
         )
     else:
         lo, hi = satellite.stellar_ml_v
         ml = numpyro.sample("ml_v", dist.Uniform(lo, hi)) if hi > lo else lo
         mag0, dmag = satellite.absolute_magnitude_v, satellite.absolute_magnitude_v_err
         mag = numpyro.sample("abs_mag_v", dist.Normal(mag0, dmag)) if dmag > 0 else mag0
-        m_star = numpyro.deterministic("m_star", ml * luminosity_v(mag))
+        m0 = ml * luminosity_v(mag)
+    m_star = numpyro.deterministic("m_star", m0 * lum_scale)
     r_e_kpc = r_half_pc * 1e-3 * jnp.sqrt(1.0 - satellite.ellipticity) * distance / d0
     numpyro.deterministic("r_e_kpc", r_e_kpc)
     return v_sys, distance, r_e_kpc, m_star
