@@ -157,6 +157,14 @@ def demo_cmd(
     typer.echo(run_demo(out_dir, progress=not quiet))
 
 
+METHOD_HELP = (
+    "velocities: auto (default: df when the model has a non-negative distribution function, "
+    "else gaussian, saying why), df (equilibrium distribution function: isotropic or "
+    "Osipkov-Merritt; refuses a model without one) or gaussian (Gaussians with the Jeans "
+    "dispersions, approximate; any anisotropy)"
+)
+
+
 def _foreground_count(n_foreground, old_spelling):
     """The number of field stars of ``halo mock`` from --n-foreground or its old name."""
     option = "--n-foreground"
@@ -174,6 +182,14 @@ def _foreground_count(n_foreground, old_spelling):
     return n_foreground
 
 
+def _method_note(method, truth_path):
+    """When --method auto fell back to the approximate Gaussians, one line on stderr saying why
+    (the equilibrium DF, the expected case, goes silently; the truth records both)."""
+    truth = json.loads(truth_path.read_text(encoding="utf-8")) if method == "auto" else {}
+    if truth.get("method_used") == "gaussian":
+        typer.echo(f"note: --method auto: {truth['method_reason']}", err=True)
+
+
 def _check_fraction(value, name):
     if not 0.0 <= value <= 1.0:
         fail(f"{name}: expected a number between 0 and 1, got {value!r}")
@@ -187,7 +203,7 @@ def mock_cmd(
     n_stars: int = typer.Option(100, "--n-stars", help="number of stars"),
     v_sys: float = typer.Option(0.0, "--v-sys", help="systemic velocity [km/s]"),
     errors: str = typer.Option("1,3", "--errors", help="velocity error range LO,HI [km/s]"),
-    method: str = typer.Option("df", "--method", help="df (equilibrium) or gaussian (approximate)"),
+    method: str = typer.Option("auto", "--method", help=METHOD_HELP),
     seed: int = typer.Option(0, "--seed", help="random seed"),
     epochs: str = typer.Option(
         None, "--epochs", help="observing epochs as MJDs, e.g. 60000,60365 (adds an mjd column)"
@@ -216,8 +232,8 @@ def mock_cmd(
     err = parse_list(errors, "--errors")
     if len(err) != 2 or err[0] > err[1]:
         fail("--errors: expected LO,HI with LO <= HI")
-    if method not in ("df", "gaussian"):
-        fail(f"--method: expected df or gaussian, got {method!r}")
+    if method not in ("auto", "df", "gaussian"):
+        fail(f"--method: expected auto, df or gaussian, got {method!r}")
     mjds = None if epochs is None else parse_list(epochs, "--epochs")
     _check_fraction(repeat_fraction, "--repeat-fraction")
     _check_fraction(binary_fraction, "--binary-fraction")
@@ -238,4 +254,5 @@ def mock_cmd(
         n_foreground=n_foreground,
         anisotropy=anisotropy,
     )
+    _method_note(method, truth_path)
     typer.echo(format_mock_written(path, truth_path, n_stars, n_foreground))

@@ -115,7 +115,7 @@ def test_gaussian_method_any_anisotropy_and_errors():
     assert abs(np.var(z) - 1) < 4 * math.sqrt(2 / z.size)
     assert mock.truth["df_physical"] is None
     with pytest.raises(InputError, match="isotropic and Osipkov-Merritt"):
-        make_mock(SAT, anisotropy=Constant(0.3), n_stars=10)
+        make_mock(SAT, anisotropy=Constant(0.3), n_stars=10, method="df")
     with pytest.raises(InputError, match="method"):
         make_mock(SAT, n_stars=10, method="jeans")
     with pytest.raises(InputError, match="error range"):

@@ -4,7 +4,10 @@ Stars are drawn in three steps, all with a seeded ``numpy.random.Generator``:
 
 1. 3D positions from the light profile (:func:`halo.mock.positions.sample_positions`: inverse of
    the enclosed light fraction, isotropic directions; the line of sight is the z axis).
-2. Velocities, by one of two methods (:mod:`halo.mock.velocities`):
+2. Velocities, by one of two methods (:mod:`halo.mock.velocities`), or ``"auto"`` (the default):
+   ``"df"`` when the model has a non-negative DF, else ``"gaussian"``
+   (:func:`halo.mock.velocities.choose_method`; ``truth["method_used"]`` and
+   ``truth["method_reason"]`` record the choice):
 
    - ``"df"`` (equilibrium, exact): the distribution function of the tracer in the total potential
      (dark halo + stars) by Eddington inversion, isotropic or Osipkov-Merritt
@@ -45,11 +48,11 @@ from astropy.table import Table
 from halo.core.errors import InputError
 from halo.inputs.satellite import Satellite, parse_satellite
 from halo.mock.binaries_epochs import observe_members, population
-from halo.mock.distribution import distribution_function
 from halo.mock.foreground import with_foreground
 from halo.mock.positions import sample_positions
 from halo.mock.sky import ellipse_offsets, sky_coordinates
 from halo.mock.velocities import (
+    choose_method,
     line_of_sight_velocity,
     sample_velocities_df,
     sample_velocities_gaussian,
@@ -100,8 +103,8 @@ def _name_of(obj, registry):
 
 def _checked(method, error_range_kms, n_stars):
     """(n_stars as int, (low, high) error range): InputError on a bad method, range or count."""
-    if method not in ("df", "gaussian"):
-        raise InputError(f"mock: method must be 'df' or 'gaussian', got {method!r}")
+    if method not in ("auto", "df", "gaussian"):
+        raise InputError(f"mock: method must be 'auto', 'df' or 'gaussian', got {method!r}")
     lo_err, hi_err = (float(v) for v in error_range_kms)
     if not 0.0 <= lo_err <= hi_err:
         raise InputError(f"mock: error range must be 0 <= low <= high, got {error_range_kms!r}")
@@ -121,14 +124,14 @@ def _model(satellite, dark, stellar_mass, anisotropy):
 
 
 def _phase_space(model, n_stars, rng, method, df_options, allow_unphysical):
-    """(positions, velocities, whether the DF is physical: None with the Gaussian method)."""
+    """(positions, velocities, the method's :class:`halo.mock.velocities.MethodChoice`)."""
     pos = sample_positions(model.light, n_stars, rng)
-    if method == "gaussian":
+    choice = choose_method(model.mass, model.light, model.anisotropy, method, df_options)
+    if choice.method == "gaussian":
         vel = sample_velocities_gaussian(model.mass, model.light, model.anisotropy, pos.r, rng)
-        return pos, vel, None
-    df = distribution_function(model.mass, model.light, model.anisotropy, **(df_options or {}))
-    vel = sample_velocities_df(df, pos.r, rng, allow_unphysical=allow_unphysical)
-    return pos, vel, df.is_physical
+    else:
+        vel = sample_velocities_df(choice.df, pos.r, rng, allow_unphysical=allow_unphysical)
+    return pos, vel, choice
 
 
 def _settings_truth(
@@ -220,7 +223,7 @@ def make_mock(
     v_sys=0.0,
     error_range_kms=(1.0, 3.0),
     seed=0,
-    method="df",
+    method="auto",
     *,
     epochs_mjd=None,
     velocity_offsets=None,
@@ -249,15 +252,19 @@ def make_mock(
     error_range_kms : (low, high): each measurement's error is uniform in this range [km/s]
     seed : seed of the numpy Generator (the same seed gives the same catalogue); None draws a
         fresh one, recorded in the truth
-    method : "df" (equilibrium distribution function, see :func:`distribution_function`) or
-        "gaussian" (approximate, see :func:`sample_velocities_gaussian`)
+    method : "auto" (default: "df" when the model has a non-negative distribution function,
+        else "gaussian", see :func:`halo.mock.velocities.choose_method`), "df" (equilibrium
+        distribution function, see :func:`halo.mock.distribution.distribution_function`;
+        InputError when the model has none) or "gaussian" (approximate, see
+        :func:`sample_velocities_gaussian`)
     epochs_mjd : None (one measurement per star, no ``mjd`` column) or a list of MJDs: each star is
         observed at every epoch with the same true velocity and independent errors
     velocity_offsets : optional callable ``(rng, star_index, mjd) -> offsets [km/s]`` (per row; mjd
         is None without epochs) added to the true velocities, e.g. binary orbital motion
-    df_options : keyword arguments for :func:`distribution_function`
+    df_options : keyword arguments for :func:`halo.mock.distribution.distribution_function`
     allow_unphysical : with ``method="df"``, sample max(f, 0) when f < 0 somewhere instead of
-        raising :class:`halo.core.errors.InputError` (``truth["df_physical"]`` records it)
+        raising :class:`halo.core.errors.InputError` (``truth["df_physical"]`` records it; with
+        ``"auto"`` such a model takes the Gaussians)
     repeat_fraction : with several epochs, the fraction of stars observed at every epoch (the
         others only at the first), chosen at random
     binary_fraction : fraction of the members that are binaries; each binary's orbit is drawn
@@ -275,7 +282,9 @@ def make_mock(
     [km/s] (and mjd), its ``meta["truth"]`` = ``truth``; ``truth`` with the input parameters, the
     light profile, r_1/2, M(<r_1/2) (3D, ``m_half_msun``) and its dark part
     (``dark_mass_half_msun``, as the fit outputs name it; also under its earlier name
-    ``m_half_dark_msun``, kept for one version), the DF check; ``stars`` with the per-star truth.
+    ``m_half_dark_msun``, kept for one version), the DF check (``df_physical``: None when no DF was
+    computed), the requested ``method``, the ``method_used`` ("df" or "gaussian") and its
+    ``method_reason`` (one line); ``stars`` with the per-star truth.
 
     Notes
     -----
@@ -290,7 +299,8 @@ def make_mock(
     if seed is None:
         seed = int(np.random.SeedSequence().entropy)
     rng = np.random.default_rng(seed)
-    pos, vel, df_physical = _phase_space(model, n_stars, rng, method, df_options, allow_unphysical)
+    pos, vel, choice = _phase_space(model, n_stars, rng, method, df_options, allow_unphysical)
+    df_physical = None if choice.df is None else choice.df.is_physical
     v_true = line_of_sight_velocity(pos, vel)
     xi, eta = ellipse_offsets(pos.x, pos.y, sat.ellipticity, sat.position_angle_deg)
     ra, dec = sky_coordinates(xi, eta, sat.ra_deg, sat.dec_deg, sat.distance_kpc)
@@ -306,7 +316,8 @@ def make_mock(
         binary_population=binary_population,
     )  # fmt: skip
     n_binaries = int(obs.is_binary.sum())
-    truth = {**settings, "n_binaries": n_binaries, **_model_truth(model, df_physical)}
+    used = {"method_used": choice.method, "method_reason": choice.reason}
+    truth = {**settings, **used, "n_binaries": n_binaries, **_model_truth(model, df_physical)}
     table = _member_table(obs, ra, dec)
     if n_foreground > 0:
         table = with_foreground(

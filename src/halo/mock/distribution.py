@@ -21,7 +21,7 @@ from halo.mock.blocks import blockwise, mass_and_density
 from halo.mock.positions import log_radius_grid
 from halo.physics.anisotropy import Constant, OsipkovMerritt
 
-__all__ = ["DistributionFunction", "distribution_function"]
+__all__ = ["DistributionFunction", "distribution_function", "anisotropy_radius"]
 
 _LN10 = math.log(10.0)
 
@@ -189,7 +189,7 @@ def _product_integral(depth, drops, h2, js):
     return np.sum(np.where(live, term, 0.0), axis=1)
 
 
-def _anisotropy_radius(anisotropy):
+def anisotropy_radius(anisotropy):
     """r_a [kpc] of an isotropic (inf) or Osipkov-Merritt model; InputError for any other."""
     if anisotropy is None or (isinstance(anisotropy, Constant) and float(anisotropy.value) == 0.0):
         return math.inf
@@ -258,7 +258,24 @@ def distribution_function(
 
     Not every model has a non-negative f: Osipkov-Merritt Plummer spheres need r_a >= 3a/4, and a
     cored tracer (Plummer, King) in a cusped potential (NFW) has f < 0 at the most bound energies
-    when isotropic. :attr:`DistributionFunction.is_physical` flags this.
+    when isotropic. :attr:`DistributionFunction.is_physical` flags this. The reason (derived here
+    from the formula above): at Q = Psi(0), integrating by parts,
+    f(Psi(0)) = -1 / (2 sqrt(8) pi^2) Int_0^Psi(0) (d nu / d Psi) (Psi(0) - Psi)^(-3/2) dPsi < 0
+    whenever the integral converges, since d nu / d Psi > 0 for a tracer falling outwards. In a
+    cusp rho ~ r^-gamma, Psi(0) - Psi ~ r^(2 - gamma), and a cored tracer (nu0 - nu ~ r^2) has
+    d nu / d Psi ~ (Psi(0) - Psi)^(gamma / (2 - gamma)): it converges for gamma > 2/3 (NFW:
+    gamma = 1); below, f -> -inf at Psi(0). Only a core in the potential too (gamma = 0, Psi
+    harmonic) keeps d nu / d Psi non-zero at the centre, where f can then be positive (e.g. a
+    Plummer tracer in a cored halo). In closed form, for a Plummer tracer of scale
+    a << r_s in an NFW halo, where Psi(0) - Psi = k r with k = 2 pi G rho_s r_s and
+    nu = nu0 (1 + s^2)^(-5/2), s = r / a, nu0 = 3 / (4 pi a^3):
+    f(Psi(0)) = 5 nu0 (k a)^(-3/2) / (sqrt(8) pi^2) [3 B(5/4, 13/4) - B(1/4, 17/4) / 2]
+              = -0.12453 nu0 (k a)^(-3/2)
+    (B the Beta function, from Int_0^inf s^(p-1) (1 + s^2)^(-9/2) ds = B(p/2, (9 - p)/2) / 2;
+    the bracket is 0.5960 - 1.2912 = -0.6953 = -B(1/4, 13/4) / 4), with relative corrections
+    0.21 a / r_s (tests/test_mock_default_method.py). So no isotropic equilibrium of this kind
+    exists, for any halo mass or concentration (min f / max f = -1.43 when a << r_s): the mocks'
+    default method then draws Jeans Gaussians instead (:func:`halo.mock.velocities.choose_method`).
 
     References
     ----------
@@ -266,7 +283,7 @@ def distribution_function(
     Merritt D. 1985, AJ 90, 1027; Binney J. & Tremaine S. 2008, Galactic Dynamics, 2nd ed.,
     sec. 4.3.
     """
-    r_a = _anisotropy_radius(anisotropy)
+    r_a = anisotropy_radius(anisotropy)
     ln_r = log_radius_grid(light, lo_dex, hi_dex, n_grid)
     depth, drops, psi_c = _potential(mass_model, ln_r, n_panel, outer_dex, n_outer)
     psi = psi_c - depth

@@ -9,24 +9,120 @@ approximate Gaussians with the Jeans dispersions; and their line-of-sight compon
   component ~ N(0, sigma_r sqrt(1 - beta(r))) with sigma_r from
   :func:`halo.physics.jeans.sigma_r` (:func:`sample_velocities_gaussian`). The second moments are
   right; the velocity distribution is not an equilibrium one.
+- ``"auto"`` (the default of mocks): ``"df"`` when the model has an equilibrium DF (isotropic or
+  Osipkov-Merritt, f >= 0 within its tolerance), else ``"gaussian"``, with the reason in one line
+  (:func:`choose_method`). An isotropic cored tracer in a cusped halo has none (see
+  :func:`halo.mock.distribution.distribution_function`).
 """
 
 import functools
+import math
 from typing import NamedTuple
 
 import jax.numpy as jnp
 import numpy as np
 
 from halo.core.errors import InputError
-from halo.mock.blocks import blockwise
+from halo.mock.blocks import blockwise, mass_and_density
+from halo.mock.distribution import anisotropy_radius, distribution_function
+from halo.physics.anisotropy import ANISOTROPIES, Constant
 from halo.physics.jeans import sigma_r as _jeans_sigma_r
 
 __all__ = [
+    "MethodChoice",
+    "choose_method",
     "Velocities",
     "sample_velocities_df",
     "sample_velocities_gaussian",
     "line_of_sight_velocity",
 ]
+
+
+#: what the Gaussian method is, as the reasons of :func:`choose_method` say it
+GAUSSIAN_NOTE = "velocities drawn from Gaussians with the Jeans dispersions (approximate)"
+
+
+class MethodChoice(NamedTuple):
+    """The velocity method of a mock: ``method`` ("df" or "gaussian"), ``reason`` (one line:
+    "requested", or why ``"auto"`` chose it) and ``df`` (the tabulated distribution function when
+    one was computed, else None)."""
+
+    method: str
+    reason: str
+    df: object
+
+
+def _df_kind(anisotropy):
+    """'isotropic' or 'Osipkov-Merritt (r_a = ... pc)'; None when there is no DF for it here."""
+    try:
+        r_a = anisotropy_radius(anisotropy)
+    except InputError:
+        return None
+    return "isotropic" if math.isinf(r_a) else f"Osipkov-Merritt (r_a = {r_a * 1e3:.3g} pc)"
+
+
+def _anisotropy_name(anisotropy):
+    if isinstance(anisotropy, Constant):
+        return f"constant anisotropy beta = {float(anisotropy.value):g}"
+    name = next((k for k, c in ANISOTROPIES.items() if isinstance(anisotropy, c)), None)
+    return f"{name or type(anisotropy).__name__} anisotropy"
+
+
+def _cored_in_cusp(mass_model, light, r0):
+    """Whether the tracer is flat (|d log nu / d log r| < 0.1) and the total density steep (> 0.5)
+    over the decade above ``r0`` [kpc], the grid's innermost radius."""
+    r = r0 * np.array([1.0, 10.0])
+    _, rho = blockwise(mass_and_density, (mass_model,), r)
+    nu = np.asarray(light.density(jnp.asarray(r)))
+    return bool(np.log10(nu[0] / nu[1]) < 0.1 and np.log10(rho[0] / rho[1]) > 0.5)
+
+
+def _negative_reason(df, kind, mass_model, light):
+    """Where and how much the tabulated DF is negative, in words."""
+    f_max = float(df.f.max())
+    neg = np.flatnonzero(df.f < -df.rtol_negative * abs(f_max))
+    r_pc = np.exp(df.ln_r[neg[[0, -1]]]) * 1e3
+    if neg[0] == 0:
+        where = f"at the centre (orbits confined within r = {r_pc[1]:.2g} pc"
+    else:
+        where = f"at intermediate energies (those of Psi(r), r = {r_pc[0]:.2g} to {r_pc[1]:.2g} pc"
+    what = f"the {kind} distribution function of this model"
+    r0 = math.exp(df.ln_r[0])
+    if kind == "isotropic" and neg[0] == 0 and _cored_in_cusp(mass_model, light, r0):
+        what = "the isotropic distribution function of a cored tracer in this cusped halo"
+    ratio = f"min f / max f = {df.f.min() / f_max:.3g}" if f_max > 0 else "f is nowhere positive"
+    return f"{what} is negative {where}; {ratio})"
+
+
+def choose_method(mass_model, light, anisotropy, method="auto", df_options=None):
+    """The velocity method of a mock, and the DF when it was computed (:class:`MethodChoice`).
+
+    ``"df"`` and ``"gaussian"`` are taken as requested (``"df"`` computes the DF; the sampler
+    refuses a negative one). ``"auto"`` computes the DF when the anisotropy has one here
+    (isotropic or Osipkov-Merritt) and uses it when :attr:`DistributionFunction.is_physical`;
+    otherwise (another anisotropy, a central potential that diverges, or f < 0 somewhere) it takes
+    the Gaussians, and the reason says which and why in one line.
+    """
+    options = df_options or {}
+    if method == "gaussian":
+        return MethodChoice("gaussian", "requested", None)
+    if method == "df":
+        df = distribution_function(mass_model, light, anisotropy, **options)
+        return MethodChoice("df", "requested", df)
+    kind = _df_kind(anisotropy)
+    if kind is None:
+        why = f"{_anisotropy_name(anisotropy)} has no distribution function here (only isotropic"
+        return MethodChoice("gaussian", f"{why} and Osipkov-Merritt ones): {GAUSSIAN_NOTE}", None)
+    try:
+        df = distribution_function(mass_model, light, anisotropy, **options)
+    except InputError as exc:  # e.g. a central potential that diverges
+        why = str(exc).split("; use")[0].removeprefix("distribution function: ")
+        return MethodChoice("gaussian", f"no distribution function ({why}): {GAUSSIAN_NOTE}", None)
+    if df.is_physical:
+        why = f"the {kind} distribution function of this model is non-negative"
+        return MethodChoice("df", f"{why}: velocities drawn from it (equilibrium)", df)
+    why = _negative_reason(df, kind, mass_model, light)
+    return MethodChoice("gaussian", f"{why}: {GAUSSIAN_NOTE}", df)
 
 
 class Velocities(NamedTuple):
