@@ -90,7 +90,7 @@ def test_no_spurious_dark_matter_and_fraction(two_epoch_fit):
     )
     # one realisation: within 3 posterior standard deviations of the realised fraction (the
     # interval's coverage over many realisations is measured in
-    # benchmarks/calibrate_binary_fraction.py)
+    # benchmarks/calibrate_binary_fraction_fit.py)
     half = 0.5 * (fb["p84"] - fb["p16"])
     assert abs(fb["median"] - is_bin.mean()) < 3 * half, fb
     assert summary["settings"]["binaries"] is True
