@@ -44,14 +44,14 @@ def _specs(models, anisotropy=None):
     names = [s.name for s in loaded]
     if len(set(names)) != len(names):
         raise InputError("--model: two specs share the same name")
-    return _shared_binaries({s.name: s for s in loaded})
+    return shared_binaries({s.name: s for s in loaded})
 
 
 def _binary_key(spec):
     return spec.binary_population(), spec.binary_fraction_range
 
 
-def _shared_binaries(specs):
+def shared_binaries(specs):
     """``specs`` with one binary population and binary-fraction prior for every model.
 
     A Bayes factor compares two likelihoods of the same data only when both models treat the

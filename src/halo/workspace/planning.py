@@ -2,9 +2,12 @@
 posterior can be reused, warm-started from (with a short or the full warmup), or must be fitted
 afresh, and why."""
 
+import functools
 import json
+import tomllib
 
 from halo.core.errors import InputError
+from halo.core.vocabulary import STARS_ONLY
 from halo.products.rundir import posterior_path
 from halo.workspace.create import current_satellite
 from halo.workspace.record import sha256
@@ -12,22 +15,53 @@ from halo.workspace.record import sha256
 __all__ = ["plan"]
 
 
-def _same_inputs(run, name, sha, catalogue, satellite, settings):
-    return (
+def _comparison_binaries(ws):
+    """A function of a run's specs ({name: sha}) giving the binary table the stars-only
+    comparator takes in a fit of them (JSON; None when they would be refused), cached per set."""
+    from halo.inputs.spec import parse_spec
+    from halo.pipeline.fit import shared_binaries
+
+    @functools.cache
+    def key(items):
+        if STARS_ONLY not in dict(items):
+            return None
+        try:
+            specs = {}
+            for name, sha in items:
+                path = ws.verified(sha, ".toml")
+                text = path.read_text(encoding="utf-8")
+                specs[name] = parse_spec(tomllib.loads(text), name, path)
+            return json.dumps(dict(shared_binaries(specs)[STARS_ONLY].binaries), sort_keys=True)
+        except (InputError, OSError, tomllib.TOMLDecodeError):  # unreadable or refused: no reuse
+            return None
+
+    return lambda specs: key(tuple(sorted(specs.items())))
+
+
+def _same_inputs(run, name, sha, inputs, binaries_of):
+    """Whether model ``name`` of ``run`` had exactly these inputs; for the stars-only comparator
+    with binaries on, also the binary table it shares with the dark specs of its fit."""
+    catalogue, satellite, settings, specs = inputs
+    same = (
         run["catalogue_sha256"] == catalogue["sha256"]
         and run["satellite_sha256"] == satellite["sha256"]
         and run["settings"] == settings
         and run["specs"].get(name) == sha
     )
+    if same and name == STARS_ONLY and settings.get("binaries"):
+        now = binaries_of(specs)
+        return now is not None and binaries_of(run["specs"]) == now
+    return same
 
 
 def _candidate(ws, runs, name, sha, inputs, force):
     """("reuse", folder) of the newest run with identical inputs for this model and a posterior
     (not with ``force``); else ("warm", folder) of the newest with the same spec, the same
     anisotropy choice and a posterior; else ("fit", None)."""
-    catalogue, satellite, settings = inputs
+    settings = inputs[2]
+    binaries_of = _comparison_binaries(ws)
     for r in [] if force else reversed(runs):
-        same = _same_inputs(r, name, sha, catalogue, satellite, settings)
+        same = _same_inputs(r, name, sha, inputs, binaries_of)
         if same and posterior_path(ws.runs / r["folder"], name).is_file():
             return "reuse", r["folder"]
     kind = settings.get("anisotropy")  # another anisotropy is another model: no warm start
@@ -96,7 +130,7 @@ def plan(ws, settings, force=False):
     runs = ws.runs_list()
     last = runs[-1] if runs else None
     inputs_key = sha256(json.dumps({"common": key_common, "specs": specs}, sort_keys=True).encode())
-    inputs = (latest, sat, settings_d)
+    inputs = (latest, sat, settings_d, specs)
     return {
         "catalogue": latest,
         "satellite": sat,
