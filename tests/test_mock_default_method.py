@@ -11,6 +11,8 @@ practice), then through the command users run.
 import json
 import math
 
+import jax
+import jax.numpy as jnp
 import numpy as np
 import pytest
 from astropy.table import Table
@@ -23,7 +25,7 @@ from halo.mock.catalogue import make_mock
 from halo.mock.distribution import distribution_function
 from halo.physics.anisotropy import Constant, OsipkovMerritt
 from halo.physics.dark import NFW
-from halo.physics.light import Plummer
+from halo.physics.light import King, Plummer
 from halo.physics.mass import MassModel, Stars
 
 _GAUSSIAN = "velocities drawn from Gaussians with the Jeans dispersions (approximate)"
@@ -57,6 +59,33 @@ def test_plummer_in_nfw_cusp_centre_matches_closed_form(r_s_over_a, tol):
     assert expected < 0 and not df.is_physical
     assert abs(f_centre / expected - 1.0) < tol
     assert -1.44 < df.f.min() / df.f.max() < -1.42  # the example's min f / max f, -1.43
+
+
+def test_king_tracer_edge_in_nfw_centre_matches_integration_by_parts():
+    # A King tracer ends at r_t with nu ~ (r_t - r)^(3/2): d^2 nu / d Psi^2 is singular there, and
+    # sampled at the grid's last node (rounded just inside r_t) it made f(Psi(0)) = +1.4e4 instead
+    # of -19, so the default method took this model for an equilibrium. Independent check: at the
+    # centre of a cusp, by parts, f(Psi(0)) = -1 / (2 sqrt(8) pi^2) Int_0^r_t (-d nu / dr)
+    # (Psi(0) - Psi)^(-3/2) dr (derived here from Eddington's formula, Binney & Tremaine 2008
+    # eq. 4.46), which needs no second derivative; measured agreement 7e-6
+    light = King.from_r_half(0.03, 3.0)
+    mass = MassModel((NFW(1e7, 1.0), Stars(light, 3e3)))
+    df = distribution_function(mass, light)
+    r_t, r0 = float(light.r_edge()), math.exp(df.ln_r[0])
+    x, w = np.polynomial.legendre.leggauss(64)
+    edges = np.sqrt(np.concatenate([[0.0], np.geomspace(r0 * 1e-3, r_t, 40)]))  # r = t^2
+    t = 0.5 * np.diff(edges)[:, None] * x + 0.5 * (edges[1:] + edges[:-1])[:, None]
+    r = t**2
+    depth = np.where(r < r0, df.depth[0] * r / r0, df.potential(r)[1])  # linear in the cusp
+    dnu = np.asarray(jax.vmap(jax.grad(light.density))(jnp.asarray(r.ravel()))).reshape(r.shape)
+    total = np.sum(0.5 * np.diff(edges)[:, None] * w * -dnu * depth**-1.5 * 2.0 * t)
+    expected = -total / (2.0 * math.sqrt(8.0) * math.pi**2)
+    slope = (df.f[1] - df.f[0]) / (df.depth[1] - df.depth[0])
+    assert expected < 0 and abs((df.f[0] - slope * df.depth[0]) / expected - 1.0) < 1e-4
+    # so the default method draws Gaussians for it (it took the DF before)
+    sat = {**SAT, "light_profile": "king", "king_concentration": 3.0}
+    mock = make_mock(sat, NFW(1e7, 1.0), stellar_mass=3e3, n_stars=10, seed=2)
+    assert mock.truth["method_used"] == "gaussian" and mock.truth["df_physical"] is False
 
 
 def _sat_toml(tmp_path):
