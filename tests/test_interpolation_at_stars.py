@@ -4,10 +4,10 @@ at every star's radius (same FAST orders), over the anisotropy prior of the ship
 import jax.numpy as jnp
 import numpy as np
 import pytest
-
 from scipy.interpolate import CubicSpline
 
-from halo.inference.model import make_fit_data, sigma_at_stars
+from halo.inference.interpolation import sigma_at_stars
+from halo.inference.model import make_fit_data
 from halo.physics.anisotropy import Constant
 from halo.physics.dark import NFW
 from halo.physics.jeans import FAST, sigma_los

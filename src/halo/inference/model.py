@@ -47,17 +47,16 @@ grows with the number of stars only through that interpolation and the sum.
 """
 
 import dataclasses
-import functools
 
 import jax
 import jax.numpy as jnp
 import numpy as np
 import numpyro
 import numpyro.distributions as dist
-from scipy.interpolate import CubicSpline
 
 from halo.core.constants import DEG
 from halo.core.vocabulary import luminosity_v
+from halo.inference.interpolation import sigma_at_stars
 from halo.inference.likelihood import (
     PerStarLikelihood,
     foreground_log_density,
@@ -234,38 +233,6 @@ def sample_spec_parameters(spec, satellite):
             x = numpyro.sample(f"log10_{name}", dist.Normal(mean, sd))
             values[name] = numpyro.deterministic(name, 10.0**x)
     return values
-
-
-@functools.lru_cache(maxsize=8)
-def _spline_slope_matrix(n):
-    """K (n x n): node slopes (per grid step) of the not-a-knot cubic spline through n equally
-    spaced values y are K @ y (the spline is linear in y; columns from scipy's CubicSpline)."""
-    x = np.arange(float(n))
-    return CubicSpline(x, np.eye(n), axis=0)(x, 1)
-
-
-# how far (in ln sigma) the cubic may leave the range of its two nodes: the true curve exceeds
-# them near an extremum by ~ h^2 |y''| / 8 < 1e-2 on the default grid; more is ringing, e.g. next to
-# an angle where sigma_los drops to its floor
-_OVERSHOOT = 0.05
-
-
-def sigma_at_stars(sig_grid, data):
-    """Cubic-spline interpolation of ln sigma_los in ln theta from the grid to the stars.
-
-    Cubic Hermite form with the not-a-knot spline's node slopes, the result kept within
-    ``_OVERSHOOT`` of its two nodes' range; see the module notes for its measured error.
-    """
-    ls = jnp.log(jnp.maximum(sig_grid, 1e-30))
-    m = jnp.asarray(_spline_slope_matrix(int(ls.shape[0]))) @ ls
-    k, s = data.idx, data.w
-    y0, y1, m0, m1 = ls[k], ls[k + 1], m[k], m[k + 1]
-    s2, s3 = s * s, s * s * s
-    ln_sig = (
-        (2 * s3 - 3 * s2 + 1) * y0 + (s3 - 2 * s2 + s) * m0 + (-2 * s3 + 3 * s2) * y1 + (s3 - s2) * m1
-    )
-    lo, hi = jnp.minimum(y0, y1) - _OVERSHOOT, jnp.maximum(y0, y1) + _OVERSHOOT
-    return jnp.exp(jnp.clip(ln_sig, lo, hi))
 
 
 def _predicted_variance(spec, satellite, data, orders, rho_c, v_center):
