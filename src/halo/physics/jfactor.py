@@ -17,9 +17,10 @@ Public functions (angles in degrees, distances in kpc):
 - ``log10_j_draws`` / ``log10_d_draws``  many parameter draws (batched pytree) at several angles
 
 All are pure JAX functions (jit, grad and vmap apply); quadrature orders are static keyword
-arguments. With the default orders the relative error of J and D is < 1e-12 for NFW and Burkert
-haloes (against nested scipy quadrature, 0.01-60 deg) and < 3e-7 for Einasto and Zhao haloes
-(against quadrupled orders); see the function docstrings and tests/test_jfactor*.py.
+arguments (for the cone integrals: the fields of :class:`halo.physics.jfactor_cone.ConeOrders`).
+With the default orders the relative error of J and D is < 1e-12 for NFW and Burkert haloes
+(against nested scipy quadrature, 0.01-60 deg) and < 3e-7 for Einasto and Zhao haloes (against
+quadrupled orders); see the function docstrings and tests/test_jfactor*.py.
 
 The cone integrals live in :mod:`halo.physics.jfactor_cone`, the angular profiles in
 :mod:`halo.physics.jfactor_los` and the per-draw tables in :mod:`halo.physics.jfactor_draws`;

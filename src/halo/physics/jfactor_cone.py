@@ -6,6 +6,7 @@ having the solid angle 2 pi (1 - cos theta); see :mod:`halo.physics.jfactor` and
 """
 
 from functools import partial
+from typing import NamedTuple
 
 import jax
 import jax.numpy as jnp
@@ -14,10 +15,44 @@ import numpy as np
 from halo.core.constants import DEG, MSUN2_KPC5_TO_GEV2_CM5, MSUN_KPC2_TO_GEV_CM2
 from halo.core.numerics import gauss_legendre, safe_positive
 
-__all__ = ["j_factor", "d_factor", "log10_j", "log10_d", "cone", "profile_edge", "ORDERS"]
+__all__ = [
+    "j_factor",
+    "d_factor",
+    "log10_j",
+    "log10_d",
+    "cone",
+    "log10_cone",
+    "profile_edge",
+    "ConeOrders",
+]
 
-#: names of the static quadrature orders of the cone integrals
-ORDERS = ("n_inner", "n_deep", "n_outer", "n_far", "inner_span")
+
+class ConeOrders(NamedTuple):
+    """Static quadrature orders of the cone integrals (hashable); the keyword arguments
+    ``**orders`` of every J/D function take these names and defaults.
+
+    n_inner : int, default 64
+        Gauss-Legendre order in s = ln(r1 / r), s in [0, 12], for the shells wholly inside the
+        cone (r1 = min(d sin theta, r_edge)).
+    n_deep : int, default 24
+        Gauss-Legendre order for s in [12, inner_span] (the centre, where profiles are power laws).
+    n_outer : int, default 64
+        Gauss-Legendre order in t = arccosh(r / (d sin theta)) for shells cut by the cone (r < d).
+    n_far : int, default 16
+        Gauss-Legendre order in v = d / r for the shells enclosing the observer (r > d).
+    inner_span : float, default 40
+        ln(r1 / r_lo); below r_lo the integrand is continued as the power law measured at r_lo.
+    """
+
+    n_inner: int = 64
+    n_deep: int = 24
+    n_outer: int = 64
+    n_far: int = 16
+    inner_span: float = 40.0
+
+
+#: output unit of the cone integral of rho^power: GeV cm^-2 (D) and GeV^2 cm^-5 (J)
+_UNIT = {1: MSUN_KPC2_TO_GEV_CM2, 2: MSUN2_KPC5_TO_GEV2_CM5}
 _S_SPLIT = 12.0  # ln(r1 / r) where the second panel of the central piece starts
 
 
@@ -122,7 +157,10 @@ def _cone_integral(profile, d, theta, power, n_inner, n_deep, n_outer, n_far, in
 
 
 def cone(profile, distance_kpc, theta_deg, power, orders):
-    """Int_cone dOmega Int_los rho^power dl; 0 at theta = 0, NaN outside [0, 90) deg."""
+    """Int_cone dOmega Int_los rho^power dl; 0 at theta = 0, NaN outside [0, 90) deg.
+
+    ``orders`` is a :class:`ConeOrders`.
+    """
     theta = jnp.asarray(theta_deg, float) * DEG
     good = (theta > 0) & (theta < 0.5 * jnp.pi)
     th = jnp.where(good, theta, 0.1)
@@ -130,18 +168,13 @@ def cone(profile, distance_kpc, theta_deg, power, orders):
     return jnp.where(good, val, jnp.where(theta == 0, 0.0, jnp.nan))
 
 
-@partial(jax.jit, static_argnames=ORDERS)
-def j_factor(
-    profile,
-    distance_kpc,
-    theta_deg,
-    *,
-    n_inner=64,
-    n_deep=24,
-    n_outer=64,
-    n_far=16,
-    inner_span=40.0,
-):
+def log10_cone(profile, distance_kpc, theta_deg, power, orders):
+    """log10 of :func:`cone` in the output unit: GeV cm^-2 (power 1), GeV^2 cm^-5 (power 2)."""
+    return jnp.log10(cone(profile, distance_kpc, theta_deg, power, orders) * _UNIT[power])
+
+
+@partial(jax.jit, static_argnames=ConeOrders._fields)
+def j_factor(profile, distance_kpc, theta_deg, **orders):
     """J-factor in a cone of half-angle ``theta_deg``: Int_cone dOmega Int_los rho^2 dl.
 
     Parameters
@@ -149,17 +182,7 @@ def j_factor(
     profile : dark profile with scalar parameters, ``density(r)`` [Msun kpc^-3], ``r_edge()`` [kpc]
     distance_kpc : float or array, distance to the halo centre [kpc]
     theta_deg : float or array, cone half-angle [deg], 0 <= theta < 90 (broadcast with distance)
-    n_inner : int, default 64
-        Gauss-Legendre order in s = ln(r1 / r), s in [0, 12], for the shells wholly inside the
-        cone (r1 = min(d sin theta, r_edge)).
-    n_deep : int, default 24
-        Gauss-Legendre order for s in [12, inner_span] (the centre, where profiles are power laws).
-    n_outer : int, default 64
-        Gauss-Legendre order in t = arccosh(r / (d sin theta)) for shells cut by the cone (r < d).
-    n_far : int, default 16
-        Gauss-Legendre order in v = d / r for the shells enclosing the observer (r > d).
-    inner_span : float, default 40
-        ln(r1 / r_lo); below r_lo the integrand is continued as the power law measured at r_lo.
+    **orders : the static quadrature orders, fields of :class:`ConeOrders` (defaults there)
 
     Returns
     -------
@@ -201,57 +224,25 @@ def j_factor(
     Evans, Sanders & Geringer-Sameth 2016, PRD 93, 103512 (definitions; their small-angle NFW
     formulae serve as a check in the tests).
     """
-    return cone(profile, distance_kpc, theta_deg, 2, (n_inner, n_deep, n_outer, n_far, inner_span))
+    return cone(profile, distance_kpc, theta_deg, 2, ConeOrders(**orders))
 
 
-@partial(jax.jit, static_argnames=ORDERS)
-def d_factor(
-    profile,
-    distance_kpc,
-    theta_deg,
-    *,
-    n_inner=64,
-    n_deep=24,
-    n_outer=64,
-    n_far=16,
-    inner_span=40.0,
-):
+@partial(jax.jit, static_argnames=ConeOrders._fields)
+def d_factor(profile, distance_kpc, theta_deg, **orders):
     """D-factor in a cone of half-angle ``theta_deg``: Int_cone dOmega Int_los rho dl [Msun kpc^-2].
 
     Same method, arguments and accuracy as :func:`j_factor` with rho in place of rho^2.
     """
-    return cone(profile, distance_kpc, theta_deg, 1, (n_inner, n_deep, n_outer, n_far, inner_span))
+    return cone(profile, distance_kpc, theta_deg, 1, ConeOrders(**orders))
 
 
-@partial(jax.jit, static_argnames=ORDERS)
-def log10_j(
-    profile,
-    distance_kpc,
-    theta_deg,
-    *,
-    n_inner=64,
-    n_deep=24,
-    n_outer=64,
-    n_far=16,
-    inner_span=40.0,
-):
+@partial(jax.jit, static_argnames=ConeOrders._fields)
+def log10_j(profile, distance_kpc, theta_deg, **orders):
     """log10 of the J-factor in GeV^2 cm^-5 (see :func:`j_factor`)."""
-    j = cone(profile, distance_kpc, theta_deg, 2, (n_inner, n_deep, n_outer, n_far, inner_span))
-    return jnp.log10(j * MSUN2_KPC5_TO_GEV2_CM5)
+    return log10_cone(profile, distance_kpc, theta_deg, 2, ConeOrders(**orders))
 
 
-@partial(jax.jit, static_argnames=ORDERS)
-def log10_d(
-    profile,
-    distance_kpc,
-    theta_deg,
-    *,
-    n_inner=64,
-    n_deep=24,
-    n_outer=64,
-    n_far=16,
-    inner_span=40.0,
-):
+@partial(jax.jit, static_argnames=ConeOrders._fields)
+def log10_d(profile, distance_kpc, theta_deg, **orders):
     """log10 of the D-factor in GeV cm^-2 (see :func:`d_factor`)."""
-    dval = cone(profile, distance_kpc, theta_deg, 1, (n_inner, n_deep, n_outer, n_far, inner_span))
-    return jnp.log10(dval * MSUN_KPC2_TO_GEV_CM2)
+    return log10_cone(profile, distance_kpc, theta_deg, 1, ConeOrders(**orders))

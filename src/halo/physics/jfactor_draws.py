@@ -6,8 +6,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
-from halo.core.constants import MSUN2_KPC5_TO_GEV2_CM5, MSUN_KPC2_TO_GEV_CM2
-from halo.physics.jfactor_cone import ORDERS, cone
+from halo.physics.jfactor_cone import ConeOrders, log10_cone
 
 __all__ = ["log10_j_draws", "log10_d_draws"]
 
@@ -27,34 +26,17 @@ def _batch(profiles, distance_kpc):
     )
 
 
-def _over_draws(fn, profiles, distance_kpc, angles_deg, orders):
+def _over_draws(power, profiles, distance_kpc, angles_deg, orders):
+    """log10 of the cone integral of rho^power (:func:`log10_cone`) per draw and angle."""
     batch, dist, shape = _batch(profiles, distance_kpc)
     angles = jnp.atleast_1d(jnp.asarray(angles_deg, float))
-    one = lambda p, dk: fn(p, dk, angles, *orders)  # noqa: E731  (vectorised over angles)
+    one = lambda p, dk: log10_cone(p, dk, angles, power, orders)  # noqa: E731  (over angles)
     out = jax.vmap(one)(batch, dist)
     return out.reshape(shape + angles.shape)
 
 
-def _log10_j_one(p, d, th, *orders):
-    return jnp.log10(cone(p, d, th, 2, orders) * MSUN2_KPC5_TO_GEV2_CM5)
-
-
-def _log10_d_one(p, d, th, *orders):
-    return jnp.log10(cone(p, d, th, 1, orders) * MSUN_KPC2_TO_GEV_CM2)
-
-
-@partial(jax.jit, static_argnames=ORDERS)
-def log10_j_draws(
-    profiles,
-    distance_kpc,
-    angles_deg,
-    *,
-    n_inner=64,
-    n_deep=24,
-    n_outer=64,
-    n_far=16,
-    inner_span=40.0,
-):
+@partial(jax.jit, static_argnames=ConeOrders._fields)
+def log10_j_draws(profiles, distance_kpc, angles_deg, **orders):
     """log10 J [GeV^2 cm^-5] for many parameter draws at several cone half-angles.
 
     Parameters
@@ -62,7 +44,7 @@ def log10_j_draws(
     profiles : dark profile whose leaves are arrays of one batch shape S (or scalars)
     distance_kpc : array of shape S (or scalar) [kpc], one distance per draw
     angles_deg : 1-d array of cone half-angles [deg]
-    n_inner, n_deep, n_outer, n_far, inner_span : as in :func:`j_factor`
+    **orders : quadrature orders, fields of :class:`halo.physics.jfactor_cone.ConeOrders`
 
     Returns
     -------
@@ -74,32 +56,10 @@ def log10_j_draws(
     mapped over draws with ``jax.vmap``; 170 density evaluations per draw and angle
     (10,000 NFW draws at 4 angles: ~0.3 s on 2 CPU cores, benchmarks/bench_jfactor.py).
     """
-    return _over_draws(
-        _log10_j_one,
-        profiles,
-        distance_kpc,
-        angles_deg,
-        (n_inner, n_deep, n_outer, n_far, inner_span),
-    )
+    return _over_draws(2, profiles, distance_kpc, angles_deg, ConeOrders(**orders))
 
 
-@partial(jax.jit, static_argnames=ORDERS)
-def log10_d_draws(
-    profiles,
-    distance_kpc,
-    angles_deg,
-    *,
-    n_inner=64,
-    n_deep=24,
-    n_outer=64,
-    n_far=16,
-    inner_span=40.0,
-):
+@partial(jax.jit, static_argnames=ConeOrders._fields)
+def log10_d_draws(profiles, distance_kpc, angles_deg, **orders):
     """log10 D [GeV cm^-2] for many draws at several angles (see :func:`log10_j_draws`)."""
-    return _over_draws(
-        _log10_d_one,
-        profiles,
-        distance_kpc,
-        angles_deg,
-        (n_inner, n_deep, n_outer, n_far, inner_span),
-    )
+    return _over_draws(1, profiles, distance_kpc, angles_deg, ConeOrders(**orders))
