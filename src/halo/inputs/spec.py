@@ -241,7 +241,8 @@ def available_specs():
 
 
 def load_spec(name_or_path):
-    """A :class:`ModelSpec` from a shipped name (``nfw``) or a path to a TOML file."""
+    """A :class:`ModelSpec` from a shipped name (``nfw``, in any case: ``NFW``; the spec keeps
+    the shipped spelling) or a path to a TOML file (a path is never matched by case)."""
     text = None
     candidate = Path(str(name_or_path))
     if candidate.suffix == ".toml" or candidate.exists():
@@ -250,10 +251,13 @@ def load_spec(name_or_path):
         name, source = candidate.stem, candidate
         text = read_input_text(candidate, missing="no such model spec file")
     else:
+        shipped = available_specs()
         name = str(name_or_path)
-        if name not in available_specs():
+        if name not in shipped:  # a shipped name in any case: `--model NFW` is nfw
+            name = next((s for s in shipped if s.casefold() == name.casefold()), name)
+        if name not in shipped:
             raise InputError(
-                f"unknown model '{name}' (available: {', '.join(available_specs())}; "
+                f"unknown model '{name}' (available: {', '.join(shipped)}; "
                 "or give a path to a .toml spec)"
             )
         source = f"models/{name}.toml"

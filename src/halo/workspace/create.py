@@ -36,8 +36,8 @@ def spec_bytes(name):
     path = Path(str(name))
     if path.suffix == ".toml" or path.exists():
         return spec.name, path.read_bytes()
-    if name in available_specs():
-        return spec.name, resources.files("halo.models").joinpath(f"{name}.toml").read_bytes()
+    if spec.name in available_specs():  # a shipped name, given in any case
+        return spec.name, resources.files("halo.models").joinpath(f"{spec.name}.toml").read_bytes()
     raise InputError(f"unknown model '{name}'")
 
 
