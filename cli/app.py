@@ -14,30 +14,97 @@ import sys
 import tempfile
 
 import typer
+from typer.core import TyperCommand, TyperGroup
 
 from halo.cli import run_commands as run
 from halo.cli import workspace_commands as ws
 from halo.cli.options import UsageFailure
 
-__all__ = ["app", "main", "INTERRUPTED"]
+__all__ = ["app", "main", "version_text", "INTERRUPTED"]
 
 #: exit code of a command interrupted by SIGINT (Ctrl-C): 128 + 2, the shells' convention
 INTERRUPTED = 130
 
+DISTRIBUTION = "halo-dynamics"  # the installed package's name (pyproject.toml)
+
+
+_NB_HYPHEN = "\u2011"  # stands in for "-" while help is wrapped
+
+
+class _Formatter(TyperCommand.context_class.formatter_class):
+    """Help wrapped at spaces only: "baes-van-hese" or "[0-1]" are never split at
+    their hyphens (the wrapper would break words there)."""
+
+    def _unbroken(self, write, *args, **kwargs):
+        start = len(self.buffer)
+        write(*args, **kwargs)
+        self.buffer[start:] = [s.replace(_NB_HYPHEN, "-") for s in self.buffer[start:]]
+
+    def write_dl(self, rows, *args, **kwargs):
+        rows = [(term, text.replace("-", _NB_HYPHEN)) for term, text in rows]
+        self._unbroken(super().write_dl, rows, *args, **kwargs)
+
+    def write_text(self, text):
+        self._unbroken(super().write_text, text.replace("-", _NB_HYPHEN))
+
+
+class _Context(TyperCommand.context_class):
+    formatter_class = _Formatter
+
+
+class _Group(TyperGroup):
+    context_class = _Context
+
+
+class _Command(TyperCommand):
+    """A command whose help names each value by its metavar (FILE, N, LIST, KEY=VALUE, ...),
+    never by its Python type (typer's own help prints ``<str>``, ``<list[str]>``)."""
+
+    context_class = _Context
+
+    def collect_usage_pieces(self, ctx):
+        pieces = [self.options_metavar] if self.options_metavar else []
+        for p in self.get_params(ctx):
+            if p.param_type_name == "argument":
+                name = p.metavar or p.name.upper()
+                pieces.append(name if p.required else f"[{name}]")
+        return pieces
+
+    def format_options(self, ctx, formatter):
+        args, opts = [], []
+        for p in self.get_params(ctx):
+            record = p.get_help_record(ctx)
+            if record is None:
+                continue
+            if p.param_type_name == "argument":
+                args.append((p.metavar or p.name.upper(), record[1]))
+            else:
+                opts.append(record)
+        for title, rows in (("Arguments", args), ("Options", opts)):
+            if rows:
+                with formatter.section(title):
+                    formatter.write_dl(rows)
+
+
 app = typer.Typer(
+    cls=_Group,
     add_completion=False,
     no_args_is_help=True,
     pretty_exceptions_enable=False,
+    rich_markup_mode=None,  # plain help: "[pc]" is a unit, not markup
+    context_settings={"max_content_width": 120},
     help="Jeans models of faint Milky Way satellites: masses, J- and D-factors, dark matter "
     "versus stars alone.",
 )
 
+# workflow order: the whole job and a fit first, then the helpers around a fit, then the
+# workspace commands in the order a user meets them
 for _name, _command in (
-    ("models", run.models_cmd),
-    ("predict", run.predict_cmd),
-    ("fit", run.fit_cmd),
     ("demo", run.demo_cmd),
+    ("fit", run.fit_cmd),
     ("mock", run.mock_cmd),
+    ("predict", run.predict_cmd),
+    ("models", run.models_cmd),
     ("init", ws.init_cmd),
     ("add", ws.add_cmd),
     ("refit", ws.refit_cmd),
@@ -45,7 +112,40 @@ for _name, _command in (
     ("history", ws.history_cmd),
     ("export", ws.export_cmd),
 ):
-    app.command(_name)(_command)
+    app.command(_name, cls=_Command)(_command)
+
+
+def version_text():
+    """'halo <version>' from the installed package's metadata (the source's own number when
+    run from an uninstalled tree)."""
+    from importlib import metadata
+
+    try:
+        version = metadata.version(DISTRIBUTION)
+    except metadata.PackageNotFoundError:  # pragma: no cover - not installed
+        from halo import __version__ as version
+    return f"halo {version}"
+
+
+def _print_version(value):
+    if value:
+        typer.echo(version_text())
+        raise typer.Exit(0)
+
+
+@app.callback()
+def _root(
+    version: bool = typer.Option(
+        False,
+        "--version",
+        "-V",
+        is_eager=True,
+        callback=_print_version,
+        help="print the version and exit",
+    ),
+):
+    """Jeans models of faint Milky Way satellites: masses, J- and D-factors, dark matter
+    versus stars alone."""
 
 
 def _configure_environment():
@@ -90,7 +190,10 @@ def main(argv=None):
         return 1
     except Exception as exc:
         if _is_usage_error(exc):
-            print(f"halo: error: {exc.format_message()}", file=sys.stderr)
+            if type(exc).__name__ == "NoArgsIsHelpError":  # bare `halo`: the help, no "error"
+                print(exc.format_message(), file=sys.stderr)
+            else:
+                print(f"halo: error: {exc.format_message()}", file=sys.stderr)
             return 2
         if os.environ.get("HALO_DEBUG"):
             raise

@@ -1,9 +1,14 @@
-"""Parsing of command-line option values: lists, KEY=VALUE pairs, counts, output folders."""
+"""Options shared by several commands (declared once, with the metavar that says what the value
+is and the help that states its unit), and parsing of option values: lists, KEY=VALUE pairs,
+counts, output folders."""
 
 import math
 import os
 import tempfile
 from pathlib import Path
+from typing import Annotated
+
+import typer
 
 __all__ = [
     "UsageFailure",
@@ -14,7 +19,43 @@ __all__ = [
     "positive_int",
     "check_out_dir",
     "satellite_path",
+    "Satellite",
+    "Models",
+    "SetValues",
+    "Columns",
+    "Anisotropy",
+    "Warmup",
+    "Draws",
+    "Seed",
+    "Quiet",
+    "JsonOut",
 ]
+
+SATELLITE_HELP = "satellite description file (TOML), or 'demo' for the embedded demo satellite"
+ANISOTROPY_HELP = (
+    "anisotropy of every model instead of its spec's: constant, osipkov-merritt, "
+    "baes-van-hese (default priors: `halo models`), or spec"
+)
+MODELS_HELP = "model spec name (any case) or path (repeatable; default nfw, cored)"
+SET_HELP = "parameter value in the units of `halo models`, e.g. m200=1e9 [Msun] (repeatable)"
+
+Satellite = Annotated[str, typer.Argument(metavar="SATELLITE", help=SATELLITE_HELP)]
+Models = Annotated[list[str] | None, typer.Option("--model", metavar="NAME", help=MODELS_HELP)]
+SetValues = Annotated[list[str] | None, typer.Option("--set", metavar="KEY=VALUE", help=SET_HELP)]
+Columns = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--column", metavar="ROLE=NAME", help="column override, e.g. vlos=VHEL (repeatable)"
+    ),
+]
+Anisotropy = Annotated[
+    str | None, typer.Option("--anisotropy", metavar="KIND", help=ANISOTROPY_HELP)
+]
+Warmup = Annotated[int, typer.Option("--warmup", metavar="N", help="warmup steps per chain")]
+Draws = Annotated[int, typer.Option("--draws", metavar="N", help="kept draws per chain")]
+Seed = Annotated[int, typer.Option("--seed", metavar="N", help="random seed")]
+Quiet = Annotated[bool, typer.Option("--quiet", help="no progress output")]
+JsonOut = Annotated[bool, typer.Option("--json", help="print one JSON object on stdout")]
 
 
 class UsageFailure(Exception):

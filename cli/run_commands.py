@@ -3,10 +3,21 @@
 import json
 import math
 import shutil
+from typing import Annotated
 
 import typer
 
 from halo.cli.options import (
+    Anisotropy,
+    Columns,
+    Draws,
+    JsonOut,
+    Models,
+    Quiet,
+    Satellite,
+    Seed,
+    SetValues,
+    Warmup,
     check_out_dir,
     fail,
     parse_angles,
@@ -18,15 +29,8 @@ from halo.cli.options import (
 
 __all__ = ["models_cmd", "predict_cmd", "fit_cmd", "demo_cmd", "mock_cmd"]
 
-ANISO_HELP = (
-    "anisotropy of every model instead of its spec's: constant, osipkov-merritt, "
-    "baes-van-hese (default priors: `halo models`), or spec"
-)
 
-
-def models_cmd(
-    json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
-):
+def models_cmd(json_out: JsonOut = False):
     """List the model specs and their parameters."""
     from halo.inputs.spec import available_specs, load_spec
     from halo.products.console import format_models, models_json
@@ -39,15 +43,22 @@ def models_cmd(
 
 
 def predict_cmd(
-    satellite: str = typer.Argument(
-        ..., help="satellite description file (TOML), or 'demo' for the embedded demo satellite"
+    satellite: Satellite,
+    model: str = typer.Option(
+        ...,
+        "--model",
+        metavar="NAME",
+        help="model spec name (see `halo models`; any case) or path to a spec file",
     ),
-    model: str = typer.Option(..., "--model", help="model spec name (see `halo models`) or path"),
-    set_: list[str] = typer.Option(None, "--set", help="parameter value, KEY=VALUE (repeatable)"),
-    radii_pc: str = typer.Option(None, "--radii-pc", help="comma-separated projected radii [pc]"),
-    angles_deg: str = typer.Option(None, "--angles-deg", help="comma-separated cone angles [deg]"),
-    anisotropy: str = typer.Option(None, "--anisotropy", help=ANISO_HELP),
-    json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
+    set_: SetValues = None,
+    radii_pc: str = typer.Option(
+        None, "--radii-pc", metavar="LIST", help="comma-separated projected radii [pc]"
+    ),
+    angles_deg: str = typer.Option(
+        None, "--angles-deg", metavar="LIST", help="comma-separated cone half-angles [deg]"
+    ),
+    anisotropy: Anisotropy = None,
+    json_out: JsonOut = False,
 ):
     """Velocity dispersion, enclosed mass, J and D of one model at given parameters."""
     from halo.inputs.satellite import read_satellite
@@ -84,20 +95,22 @@ def _read_inputs(catalogue, satellite, column):
     return sat_path, sat, stars
 
 
+Catalogue = Annotated[
+    str,
+    typer.Argument(metavar="CATALOGUE", help="velocity catalogue (ECSV, FITS, VOTable or CSV)"),
+]
+
+
 def fit_cmd(
-    catalogue: str = typer.Argument(..., help="velocity catalogue (ECSV, FITS, VOTable or CSV)"),
-    satellite: str = typer.Argument(..., help="satellite description file (TOML) or 'demo'"),
-    out: str = typer.Option(..., "--out", help="output folder"),
-    model: list[str] = typer.Option(
-        None, "--model", help="model spec name or path (repeatable; default nfw, cored)"
-    ),
-    chains: int = typer.Option(4, "--chains", help="number of chains"),
-    warmup: int = typer.Option(1000, "--warmup", help="warmup steps per chain"),
-    draws: int = typer.Option(1000, "--draws", help="kept draws per chain"),
-    seed: int = typer.Option(0, "--seed", help="random seed"),
-    column: list[str] = typer.Option(
-        None, "--column", help="column override ROLE=NAME, e.g. vlos=VHEL (repeatable)"
-    ),
+    catalogue: Catalogue,
+    satellite: Satellite,
+    out: Annotated[str, typer.Option("--out", metavar="DIR", help="output folder")],
+    model: Models = None,
+    chains: int = typer.Option(4, "--chains", metavar="N", help="number of chains"),
+    warmup: Warmup = 1000,
+    draws: Draws = 1000,
+    seed: Seed = 0,
+    column: Columns = None,
     overwrite: bool = typer.Option(False, "--overwrite", help="replace results already in --out"),
     binaries: bool = typer.Option(
         True,
@@ -111,8 +124,8 @@ def fit_cmd(
         help="mix members with a broad non-member velocity distribution; default: on when the "
         "catalogue reaches beyond the members (member_prob column or far velocity outliers)",
     ),
-    anisotropy: str = typer.Option(None, "--anisotropy", help=ANISO_HELP),
-    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+    anisotropy: Anisotropy = None,
+    quiet: Quiet = False,
 ):
     """Fit the models to a catalogue and compare each with stars alone."""
     from halo.inputs.spec import load_spec
@@ -146,9 +159,9 @@ def fit_cmd(
 
 
 def demo_cmd(
-    out: str = typer.Option("halo-demo-output", "--out", help="output folder"),
+    out: str = typer.Option("halo-demo-output", "--out", metavar="DIR", help="output folder"),
     overwrite: bool = typer.Option(True, "--overwrite/--keep", help="replace an earlier demo run"),
-    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+    quiet: Quiet = False,
 ):
     """The whole job on the embedded fictional satellite and its mock catalogue."""
     from halo.pipeline.demo import run_demo
@@ -163,6 +176,49 @@ METHOD_HELP = (
     "Osipkov-Merritt; refuses a model without one) or gaussian (Gaussians with the Jeans "
     "dispersions, approximate; any anisotropy)"
 )
+
+
+N_STARS_HELP = "number of member stars"
+V_SYS_HELP = "systemic velocity [km/s]"
+ERRORS_HELP = "range of the velocity errors [km/s]"
+EPOCHS_HELP = "observing epochs, comma-separated [MJD, d], e.g. 60000,60365 (adds an mjd column)"
+MockOut = Annotated[
+    str,
+    typer.Option("--out", metavar="FILE", help="output catalogue (.ecsv, .fits, .vot or .csv)"),
+]
+MockModel = Annotated[
+    str,
+    typer.Option(
+        "--model",
+        metavar="NAME",
+        help="model spec (name in any case, or path) giving the halo and anisotropy",
+    ),
+]
+Method = Annotated[str, typer.Option("--method", metavar="auto|df|gaussian", help=METHOD_HELP)]
+Epochs = Annotated[str | None, typer.Option("--epochs", metavar="LIST", help=EPOCHS_HELP)]
+RepeatFraction = Annotated[
+    float,
+    typer.Option(
+        "--repeat-fraction",
+        metavar="FRACTION",
+        help="fraction of stars observed at every epoch [0-1]",
+    ),
+]
+BinaryFraction = Annotated[
+    float,
+    typer.Option(
+        "--binary-fraction",
+        metavar="FRACTION",
+        help="fraction of members that are binaries, orbits drawn [0-1]",
+    ),
+]
+NForeground = Annotated[
+    int, typer.Option("--n-foreground", metavar="N", help="number of non-member field stars to add")
+]
+OldForeground = Annotated[
+    int | None,
+    typer.Option("--foreground", hidden=True, help="old name of --n-foreground (one version)"),
+]
 
 
 def _foreground_count(n_foreground, old_spelling):
@@ -196,31 +252,21 @@ def _check_fraction(value, name):
 
 
 def mock_cmd(
-    satellite: str = typer.Argument(..., help="satellite description file (TOML) or 'demo'"),
-    out: str = typer.Option(..., "--out", help="output catalogue (.ecsv, .fits, .vot or .csv)"),
-    model: str = typer.Option("nfw", "--model", help="model spec giving the halo and anisotropy"),
-    set_: list[str] = typer.Option(None, "--set", help="parameter value, KEY=VALUE (repeatable)"),
-    n_stars: int = typer.Option(100, "--n-stars", help="number of stars"),
-    v_sys: float = typer.Option(0.0, "--v-sys", help="systemic velocity [km/s]"),
-    errors: str = typer.Option("1,3", "--errors", help="velocity error range LO,HI [km/s]"),
-    method: str = typer.Option("auto", "--method", help=METHOD_HELP),
-    seed: int = typer.Option(0, "--seed", help="random seed"),
-    epochs: str = typer.Option(
-        None, "--epochs", help="observing epochs as MJDs, e.g. 60000,60365 (adds an mjd column)"
-    ),
-    repeat_fraction: float = typer.Option(
-        1.0, "--repeat-fraction", help="fraction of stars observed at every epoch"
-    ),
-    binary_fraction: float = typer.Option(
-        0.0, "--binary-fraction", help="fraction of members that are binaries (orbits drawn)"
-    ),
-    n_foreground: int = typer.Option(
-        0, "--n-foreground", help="number of non-member field stars to add"
-    ),
-    old_foreground: int = typer.Option(
-        None, "--foreground", hidden=True, help="old name of --n-foreground (one version)"
-    ),
-    anisotropy: str = typer.Option(None, "--anisotropy", help=ANISO_HELP),
+    satellite: Satellite,
+    out: MockOut,
+    model: MockModel = "nfw",
+    set_: SetValues = None,
+    n_stars: Annotated[int, typer.Option("--n-stars", metavar="N", help=N_STARS_HELP)] = 100,
+    v_sys: Annotated[float, typer.Option("--v-sys", metavar="KM/S", help=V_SYS_HELP)] = 0.0,
+    errors: Annotated[str, typer.Option("--errors", metavar="LO,HI", help=ERRORS_HELP)] = "1,3",
+    method: Method = "auto",
+    seed: Seed = 0,
+    epochs: Epochs = None,
+    repeat_fraction: RepeatFraction = 1.0,
+    binary_fraction: BinaryFraction = 0.0,
+    n_foreground: NForeground = 0,
+    old_foreground: OldForeground = None,
+    anisotropy: Anisotropy = None,
 ):
     """A mock catalogue with a known truth (written beside it as JSON)."""
     from halo.mock.files import write_mock

@@ -3,20 +3,37 @@ workspace's latest run or of any fit folder)."""
 
 import json
 from pathlib import Path
+from typing import Annotated
 
 import typer
 
-from halo.cli.options import parse_angles, positive_int, satellite_path
+from halo.cli.options import (
+    Columns,
+    Draws,
+    JsonOut,
+    Models,
+    Quiet,
+    Seed,
+    Warmup,
+    parse_angles,
+    positive_int,
+    satellite_path,
+)
 
 __all__ = ["init_cmd", "add_cmd", "refit_cmd", "status_cmd", "history_cmd", "export_cmd"]
 
+Workspace = Annotated[str, typer.Argument(metavar="DIR", help="workspace folder")]
+
 
 def init_cmd(
-    workspace: str = typer.Argument(..., help="new workspace folder"),
-    satellite: str = typer.Option(..., "--satellite", help="satellite description file (TOML)"),
-    model: list[str] = typer.Option(
-        None, "--model", help="model spec name or path (repeatable; default nfw, cored)"
+    workspace: str = typer.Argument(..., metavar="DIR", help="new workspace folder"),
+    satellite: str = typer.Option(
+        ...,
+        "--satellite",
+        metavar="FILE",
+        help="satellite description file (TOML), or 'demo' for the embedded demo satellite",
     ),
+    model: Models = None,
 ):
     """Create a workspace for one satellite: catalogue versions, runs and their history."""
     from halo.workspace.create import init_workspace
@@ -26,14 +43,14 @@ def init_cmd(
 
 
 def add_cmd(
-    workspace: str = typer.Argument(..., help="workspace folder"),
-    catalogue: str = typer.Argument(..., help="velocity catalogue with new stars or epochs"),
+    workspace: Workspace,
+    catalogue: str = typer.Argument(
+        ..., metavar="CATALOGUE", help="velocity catalogue with new stars or epochs"
+    ),
     replace: bool = typer.Option(
         False, "--replace", help="let new values supersede conflicting measurements"
     ),
-    column: list[str] = typer.Option(
-        None, "--column", help="column override ROLE=NAME, e.g. vlos=VHEL (repeatable)"
-    ),
+    column: Columns = None,
 ):
     """Merge a catalogue's stars and epochs into a new catalogue version."""
     from halo.inputs.catalogue import parse_column_overrides
@@ -45,14 +62,33 @@ def add_cmd(
 
 
 _SATELLITE_HELP = "use this satellite file from now on (default: re-read the recorded one)"
+RefitModels = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--model",
+        metavar="NAME",
+        help="add or update a model spec (name in any case, or path; repeatable)",
+    ),
+]
+RefitAnisotropy = Annotated[
+    str | None,
+    typer.Option(
+        "--anisotropy",
+        metavar="KIND",
+        help="anisotropy of every model instead of its spec's: constant, osipkov-merritt, "
+        "baes-van-hese, or spec (default: as last run)",
+    ),
+]
 
 
 def refit_cmd(
-    workspace: str = typer.Argument(..., help="workspace folder"),
-    chains: int = typer.Option(None, "--chains", help="number of chains (default: as last run)"),
-    warmup: int = typer.Option(None, "--warmup", help="warmup steps per chain"),
-    draws: int = typer.Option(None, "--draws", help="kept draws per chain"),
-    seed: int = typer.Option(None, "--seed", help="random seed"),
+    workspace: Workspace,
+    chains: int = typer.Option(
+        None, "--chains", metavar="N", help="number of chains (default: as last run)"
+    ),
+    warmup: Warmup = None,
+    draws: Draws = None,
+    seed: Seed = None,
     binaries: bool | None = typer.Option(
         None, "--binaries/--no-binaries", help="model binaries (default: as last run, on)"
     ),
@@ -60,17 +96,10 @@ def refit_cmd(
         None, "--foreground/--no-foreground", help="model foreground (default: as last run)"
     ),
     force: bool = typer.Option(False, "--force", help="refit every model even if unchanged"),
-    model: list[str] = typer.Option(
-        None, "--model", help="add or update a model spec (name or path; repeatable)"
-    ),
-    satellite: str = typer.Option(None, "--satellite", help=_SATELLITE_HELP),
-    anisotropy: str = typer.Option(
-        None,
-        "--anisotropy",
-        help="anisotropy of every model instead of its spec's: constant, osipkov-merritt, "
-        "baes-van-hese, or spec (default: as last run)",
-    ),
-    quiet: bool = typer.Option(False, "--quiet", help="no progress output"),
+    model: RefitModels = None,
+    satellite: str = typer.Option(None, "--satellite", metavar="FILE", help=_SATELLITE_HELP),
+    anisotropy: RefitAnisotropy = None,
+    quiet: Quiet = False,
 ):
     """Fit what changed since the last run (unchanged models are reused, others warm-started).
 
@@ -114,8 +143,8 @@ def refit_cmd(
 
 
 def status_cmd(
-    workspace: str = typer.Argument(..., help="workspace folder"),
-    json_out: bool = typer.Option(False, "--json", help="one JSON object on stdout"),
+    workspace: Workspace,
+    json_out: JsonOut = False,
 ):
     """What is stale in a workspace and what the next refit would do."""
     from halo.products.console import format_status
@@ -126,8 +155,8 @@ def status_cmd(
 
 
 def history_cmd(
-    workspace: str = typer.Argument(..., help="workspace folder"),
-    json_out: bool = typer.Option(False, "--json", help="one JSON object on stdout"),
+    workspace: Workspace,
+    json_out: JsonOut = False,
 ):
     """How the mass, J-factor, Bayes factors and members moved from run to run."""
     from halo.products.console import format_history
@@ -143,10 +172,14 @@ def history_cmd(
 
 
 def export_cmd(
-    source: str = typer.Argument(..., help="workspace folder (its latest run) or a fit folder"),
-    out: str = typer.Option(..., "--out", help="output folder (must not hold earlier exports)"),
+    source: str = typer.Argument(
+        ..., metavar="DIR", help="workspace folder (its latest run) or a fit folder"
+    ),
+    out: str = typer.Option(
+        ..., "--out", metavar="OUT", help="output folder (must not hold earlier exports)"
+    ),
     angles_deg: str = typer.Option(
-        None, "--angles-deg", help="extra cone half-angles [deg], comma-separated"
+        None, "--angles-deg", metavar="LIST", help="extra cone half-angles, comma-separated [deg]"
     ),
 ):
     """J- and D-factor tables, posterior draws, FITS templates and the summary of a run."""
