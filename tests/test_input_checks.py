@@ -121,6 +121,7 @@ def test_mock_negative_df_names_the_flag(capsys, tmp_path):
     )
     out = tmp_path / "m.ecsv"
     args = ["mock", "demo", "--out", str(out), "--model", str(spec), "--n-stars", "20"]
+    args += ["--method", "df"]  # auto would fall back to the Gaussians, saying why
     args += ["--set", "m200=1e9", "--set", "c200=20", "--set", "r_a=0.003"]
     line = _refused(capsys, args, "--method gaussian")
     assert "method='gaussian'" not in line and not out.exists()
