@@ -11,7 +11,6 @@ are parsed by :mod:`halo.cli.options`; what they print is written by
 
 import os
 import sys
-import tempfile
 
 import typer
 from typer.core import TyperCommand, TyperGroup
@@ -149,15 +148,15 @@ def _root(
 
 
 def _configure_environment():
-    """Keep library caches out of HOME unless the user chose otherwise; quiet JAX."""
-    tmp = os.path.join(tempfile.gettempdir(), f"halo-cache-{os.getuid()}")
-    os.environ.setdefault("MPLCONFIGDIR", os.path.join(tmp, "matplotlib"))
+    """Library caches in halo's one user cache folder (halo.core.cache: HALO_CACHE_DIR, else
+    $XDG_CACHE_HOME/halo, else ~/.cache/halo) unless the user chose otherwise; quiet JAX."""
+    from halo.core.cache import configure_caches
+
     os.environ.setdefault("MPLBACKEND", "Agg")
     os.environ.setdefault("JAX_PLATFORMS", "cpu")
-    # compiled programs are kept between runs (reruns skip most of the compilation)
-    os.environ.setdefault("JAX_COMPILATION_CACHE_DIR", os.path.join(tmp, "jax"))
-    os.environ.setdefault("JAX_PERSISTENT_CACHE_MIN_COMPILE_TIME_SECS", "0.5")
     os.environ.setdefault("TF_CPP_MIN_LOG_LEVEL", "3")
+    # compiled programs are kept between runs (reruns skip most of the compilation)
+    configure_caches()
 
 
 def _is_usage_error(exc):

@@ -14,6 +14,7 @@ is compared with it. One model's run is :mod:`halo.pipeline.model_run`, the summ
 """
 
 import dataclasses
+import time
 from pathlib import Path
 
 import numpy as np
@@ -115,10 +116,18 @@ def _write_outputs(out_dir, summary, results, stars, satellite, ctx):
     from halo.products.text_report import write_summary_table
 
     say("writing figures", ctx["settings"])
+    t0 = time.perf_counter()
     figures = make_figures(
         results, stars, satellite, ctx["sigma_angles"], out_dir / "figures", summary
     )
     summary["figures"] = [str(p.relative_to(out_dir)) for p in figures]
+    # wall time per stage [s]: each model's own stages are under models.<name>.stage_times_s
+    summary["stage_times_s"] = {
+        "before_models": ctx["t_models"] - ctx["t_start"],
+        "models": {n: r["time_s"] for n, r in results.items()},
+        "summary": t0 - ctx["t_summary"],
+        "figures": time.perf_counter() - t0,
+    }
     write_summary_table(summary, out_dir / "summary.ecsv")
     write_members(out_dir / "members.ecsv", stars, results, list(summary["models"]), satellite)
     write_json(out_dir / "summary.json", summary)
@@ -141,6 +150,7 @@ def fit(
     caller guarantees identical inputs); ``warm``: {model name: earlier output folder} whose
     posterior starts the chains. Writes the output folder and returns the summary dict.
     """
+    t_start = time.perf_counter()
     reuse, warm = reuse or {}, warm or {}
     settings = FitSettings() if settings is None else settings
     out_dir = Path(out_dir)
@@ -154,12 +164,15 @@ def fit(
         "settings": settings,
         "sigma_angles": _sigma_angles(stars),
         "out_dir": out_dir,
+        "t_start": t_start,
+        "t_models": time.perf_counter(),
     }
     results = {}
     for n in [STARS_ONLY] + [m for m in specs if m != STARS_ONLY]:
         interrupt.check()
         results[n] = run_model(n, specs[n], ctx, reuse=reuse.get(n), warm=warm.get(n))
         interrupt.check()
+    ctx["t_summary"] = time.perf_counter()
     summary = build_summary(
         stars, satellite, settings, (fg_on, fg_reason), results, specs, satellite_path
     )

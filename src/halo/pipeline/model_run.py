@@ -88,6 +88,32 @@ def _posterior(name, model, latent, ctx, reuse, warm):
     return idata, samples, None, start.record, time.perf_counter() - t0
 
 
+def _star_probabilities(spec, satellite, data, binaries, foreground, samples, latent):
+    """Per-star membership and binary probabilities (None without binaries and foreground)."""
+    if binaries is None and foreground is None:
+        return {"member_prob": None, "binary_prob": None}
+    terms_model = make_model(
+        spec, satellite, data, binaries=binaries, foreground=foreground, keep_terms=True
+    )
+    return star_probabilities(terms_model, samples, latent)
+
+
+class _StageClock:
+    """Wall time per stage [s] (``laps``: stage -> seconds since the previous lap)."""
+
+    def __init__(self):
+        self.t0 = self.last = time.perf_counter()
+        self.laps = {}
+
+    def lap(self, stage):
+        now = time.perf_counter()
+        self.laps[stage] = self.laps.get(stage, 0.0) + now - self.last
+        self.last = now
+
+    def total(self):
+        return time.perf_counter() - self.t0
+
+
 def run_model(name, spec, ctx, reuse=None, warm=None):
     """Fit one model (or, with ``reuse`` = an earlier output folder whose inputs were identical,
     take its posterior and evidence); ``warm`` = an earlier folder to start the chains from.
@@ -96,13 +122,15 @@ def run_model(name, spec, ctx, reuse=None, warm=None):
     ``settings``, ``sigma_angles`` and ``out_dir``. Returns the model's result dict.
     """
     satellite, settings = ctx["satellite"], ctx["settings"]
+    clock = _StageClock()
     binaries, data, epochs = ctx["likes"].get(spec)
     foreground = Foreground(satellite.foreground) if ctx["likes"].foreground_on else None
     model = make_model(spec, satellite, data, binaries=binaries, foreground=foreground)
     latent = latent_sites(model)
-    t0 = time.perf_counter()
+    clock.lap("data")
     idata, samples, ev, start, t_sample = _posterior(name, model, latent, ctx, reuse, warm)
     diag = diagnostics(idata, latent)
+    clock.lap("sampling")
     if not diag.converged:
         say(f"[{name}] WARNING: NOT CONVERGED: {'; '.join(diag.problems())}", settings)
     if ev is None:
@@ -115,19 +143,19 @@ def run_model(name, spec, ctx, reuse=None, warm=None):
             seed=settings.seed,
             progress=settings.progress,
         )
+    clock.lap("evidence")
     loo, loo_warnings = _loo(idata)
-    probs = {"member_prob": None, "binary_prob": None}
-    if binaries is not None or foreground is not None:
-        terms_model = make_model(
-            spec, satellite, data, binaries=binaries, foreground=foreground, keep_terms=True
-        )
-        probs = star_probabilities(terms_model, samples, latent)
+    clock.lap("loo")
+    probs = _star_probabilities(spec, satellite, data, binaries, foreground, samples, latent)
+    clock.lap("star_probabilities")
     say(f"[{name}] derived quantities", settings)
     rng = np.random.default_rng(settings.seed)
     der = derive(spec, satellite, samples, sigma_angles_deg=ctx["sigma_angles"], rng=rng)
+    clock.lap("derived")
     if reuse is None:
         with atomic_path(posterior_path(ctx["out_dir"], name)) as tmp:
             idata.to_netcdf(str(tmp))
+    clock.lap("posterior_file")
     return {
         "reused_from": None if reuse is None else str(reuse),
         "warm_start": start,
@@ -138,7 +166,8 @@ def run_model(name, spec, ctx, reuse=None, warm=None):
         "evidence": ev,
         "loo": loo,
         "derived": der,
-        "time_s": time.perf_counter() - t0,
+        "time_s": clock.total(),
+        "stage_times_s": clock.laps,
         "sampling_time_s": t_sample,
         "loo_warnings": loo_warnings,
         "binary_prob": probs["binary_prob"],

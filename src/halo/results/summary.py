@@ -100,6 +100,7 @@ def model_summary(res):
         "loo": _loo(res),
         "time_s": res["time_s"],
         "sampling_time_s": res["sampling_time_s"],
+        "stage_times_s": res.get("stage_times_s"),
         "binary_fraction": (
             quantiles(res["samples"]["f_binary"]) if "f_binary" in res["samples"] else None
         ),
