@@ -12,6 +12,15 @@ import arviz as az
 import jax.numpy as jnp
 import pytest
 from astropy.table import Table
+from fit_setup import (
+    CLUSTER,
+    DWARF,
+    cluster_mock,
+    fit_command,
+    tiny_chains,
+    tiny_settings,
+    write_satellite,
+)
 
 from halo.cli.app import main
 from halo.inputs.catalogue import stars_from_table
@@ -20,40 +29,14 @@ from halo.mock.catalogue import make_mock
 from halo.physics.cosmology import rho_crit
 from halo.physics.dark import CoreNFW
 from halo.physics.jfactor import log10_j
-from halo.pipeline.fit import FitSettings, fit
+from halo.pipeline.fit import fit
 from halo.results.comparison import verdict
 
-DWARF = {
-    "name": "Test dwarf",
-    "ra_deg": 40.0,
-    "dec_deg": 12.0,
-    "distance_kpc": 60.0,
-    "distance_err_kpc": 3.0,
-    "r_half_pc": 50.0,
-    "r_half_err_pc": 5.0,
-    "ellipticity": 0.2,
-    "position_angle_deg": 30.0,
-    "stellar_mass_msun": 8000.0,
-    "stellar_mass_err_msun": 2000.0,
-    "absolute_magnitude_v": -4.5,
-    "absolute_magnitude_v_err": 0.2,
-}
-CLUSTER = {
-    "name": "Test cluster",
-    "ra_deg": 200.0,
-    "dec_deg": -30.0,
-    "distance_kpc": 30.0,
-    "distance_err_kpc": 1.5,
-    "r_half_pc": 6.0,
-    "r_half_err_pc": 0.6,
-    "stellar_mass_msun": 2.0e4,
-    "stellar_mass_err_msun": 4.0e3,
-}
-SETTINGS = FitSettings(chains=2, warmup=400, draws=400, seed=3, progress=False)
+SETTINGS = tiny_settings(400, 400, 3)
 # The dwarf mock has no binaries and the estimators assume none, so the dwarf is fitted without
 # the binary term (with it, the free binary fraction legitimately absorbs part of the
 # dispersion); the cluster uses the defaults (binaries on, foreground decided automatically).
-NO_BINARIES = FitSettings(chains=2, warmup=400, draws=400, seed=3, progress=False, binaries=False)
+NO_BINARIES = tiny_settings(400, 400, 3, binaries=False)
 
 
 @pytest.fixture(scope="module")
@@ -71,7 +54,7 @@ def dwarf_fit(tmp_path_factory):
 @pytest.fixture(scope="module")
 def cluster_fit(tmp_path_factory):
     sat = parse_satellite(CLUSTER)
-    mock = make_mock(sat, None, n_stars=60, v_sys=12.0, error_range_kms=(0.8, 1.5), seed=5)
+    mock = cluster_mock(sat, 60, 5)
     stars = stars_from_table(mock.table, sat, source="cluster-mock")
     out = tmp_path_factory.mktemp("cluster")
     return fit(stars, sat, out, ["nfw"], SETTINGS), mock.truth, (stars, sat, out)
@@ -176,32 +159,15 @@ def test_verdict_scale():
 
 def test_cli_fit_runs_and_protects_results(tmp_path, capsys):
     sat = parse_satellite(CLUSTER)
-    mock = make_mock(sat, None, n_stars=25, v_sys=12.0, error_range_kms=(0.8, 1.5), seed=9)
+    mock = cluster_mock(sat, 25, 9)
     cat = tmp_path / "stars.fits"
     mock.table.rename_column("vlos", "VHEL")
     mock.table.meta.clear()  # a FITS header holds no nested truth record
     mock.table.write(cat)
-    sat_file = tmp_path / "cluster.toml"
-    sat_file.write_text("\n".join(f"{k} = {json.dumps(v)}" for k, v in CLUSTER.items()) + "\n")
+    sat_file = write_satellite(tmp_path / "cluster.toml", CLUSTER)
     out = tmp_path / "run"
-    args = [
-        "fit",
-        str(cat),
-        str(sat_file),
-        "--out",
-        str(out),
-        "--model",
-        "stars-only",
-        "--chains",
-        "1",
-        "--warmup",
-        "100",
-        "--draws",
-        "100",
-        "--column",
-        "vlos=VHEL",
-        "--quiet",
-    ]
+    args = [*fit_command(cat, sat_file, out, "stars-only"), *tiny_chains(1, 100, 100)]
+    args += ["--column", "vlos=VHEL", "--quiet"]
     assert main(args) == 0
     text = capsys.readouterr().out
     assert "stars-only" in text and "summary.json" in text
@@ -280,7 +246,7 @@ def test_warm_start_takes_the_mass_matrix_only_from_a_converged_run(cluster_fit,
         s = json.loads((prev / "summary.json").read_text())
         s["models"]["stars-only"]["converged"] = converged
         (prev / "summary.json").write_text(json.dumps(s))
-        quick = FitSettings(chains=2, warmup=60, draws=60, seed=3, progress=True, binaries=binaries)
+        quick = tiny_settings(60, 60, 3, progress=True, binaries=binaries)
         res = fit(stars, sat, tmp_path / f"next-{converged}-{binaries}", ["stars-only"], quick,
                   warm={"stars-only": prev})  # fmt: skip
         start = res["models"]["stars-only"]["warm_start"]

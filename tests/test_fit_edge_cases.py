@@ -12,43 +12,20 @@ import json
 import numpy as np
 import pytest
 from astropy.table import Table
+from fit_setup import NO_EXTRAS, field_catalogue, fit_command, tiny_chains, write_testa
 
 from halo.cli.app import main
 from halo.products import plots
-
-SATELLITE = """name = "Testa II"
-ra_deg = 151.25
-dec_deg = -23.40
-distance_kpc = 45.0
-distance_err_kpc = 2.5
-r_half_pc = 40.0
-r_half_err_pc = 4.0
-ellipticity = 0.3
-position_angle_deg = 65.0
-stellar_mass_msun = 6000.0
-stellar_mass_err_msun = 1800.0
-"""
 
 
 @pytest.fixture(scope="module")
 def swamped(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("edge")
-    sat = tmp / "sat.toml"
-    sat.write_text(SATELLITE)
-    rng = np.random.default_rng(3)
-    n = 12
-    t = Table()
-    t["id"] = [f"s{i}" for i in range(n)]
-    t["ra"] = 151.25 + rng.uniform(-0.02, 0.02, n)
-    t["dec"] = -23.40 + rng.uniform(-0.02, 0.02, n)
+    sat = write_testa(tmp / "sat.toml", "Testa II")
     # errors of 30 km/s and a scatter no larger: the dispersion is not resolved
-    t["vlos"] = 87.0 + 20.0 * rng.standard_normal(n)
-    t["vlos_err"] = np.full(n, 30.0)
-    cat = tmp / "wide.ecsv"
-    t.write(cat, format="ascii.ecsv")
+    cat = field_catalogue(tmp / "wide.ecsv", [f"s{i}" for i in range(12)], 3, 20.0, 30.0)
     out = tmp / "out"
-    args = ["fit", str(cat), str(sat), "--out", str(out), "--model", "stars-only", "--chains"]
-    args += ["1", "--warmup", "150", "--draws", "150", "--no-binaries", "--no-foreground"]
+    args = [*fit_command(cat, sat, out, "stars-only"), *tiny_chains(1), *NO_EXTRAS]
     return main([*args, "--quiet"]), out
 
 

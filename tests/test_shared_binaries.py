@@ -9,24 +9,21 @@ models share (``comparison``).
 from importlib import resources
 
 import pytest
+from fit_setup import (
+    CLUSTER,
+    cluster_mock,
+    fit_command,
+    tiny_chains,
+    tiny_settings,
+    write_satellite,
+)
 
 from halo.cli.app import main
 from halo.inputs.catalogue import stars_from_table
 from halo.inputs.satellite import parse_satellite
-from halo.mock.catalogue import make_mock
-from halo.pipeline.fit import FitSettings, fit
+from halo.pipeline.fit import fit
 
-SAT = {
-    "name": "Shared binaries",
-    "ra_deg": 200.0,
-    "dec_deg": -30.0,
-    "distance_kpc": 30.0,
-    "distance_err_kpc": 1.5,
-    "r_half_pc": 6.0,
-    "r_half_err_pc": 0.6,
-    "stellar_mass_msun": 2.0e4,
-    "stellar_mass_err_msun": 4.0e3,
-}
+SAT = {**CLUSTER, "name": "Shared binaries"}
 NFW = resources.files("halo.models").joinpath("nfw.toml").read_text(encoding="utf-8")
 
 
@@ -37,15 +34,10 @@ def _spec(tmp_path, name, fraction):
 
 
 def _write_inputs(tmp_path):
-    mock = make_mock(SAT, None, n_stars=20, v_sys=12.0, error_range_kms=(0.8, 1.5), seed=5)
+    mock = cluster_mock(SAT, 20, 5)
     cat = tmp_path / "cat.ecsv"
     mock.table.write(cat, format="ascii.ecsv")
-    sat = tmp_path / "sat.toml"
-    sat.write_text(
-        "\n".join(f"{k} = {v!r}".replace("'", '"') for k, v in SAT.items()) + "\n",
-        encoding="utf-8",
-    )
-    return cat, sat, mock
+    return cat, write_satellite(tmp_path / "sat.toml", SAT), mock
 
 
 def test_disagreeing_dark_specs_are_refused_before_sampling(tmp_path, capsys):
@@ -53,8 +45,7 @@ def test_disagreeing_dark_specs_are_refused_before_sampling(tmp_path, capsys):
     a = _spec(tmp_path, "nfw_low", "[0.0, 0.2]")
     b = _spec(tmp_path, "nfw_high", "[0.3, 0.9]")
     out = tmp_path / "out"
-    args = ["fit", str(cat), str(sat), "--out", str(out), "--model", str(a), "--model", str(b)]
-    args += ["--chains", "1", "--warmup", "50", "--draws", "50"]
+    args = [*fit_command(cat, sat, out, a, b), *tiny_chains(1, 50, 50)]
     assert main(args) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) >= 1 and err[-1].startswith("halo: error: ")
@@ -68,7 +59,7 @@ def test_stars_only_takes_the_dark_specs_binary_fraction_prior(tmp_path):
     sat = parse_satellite(SAT)
     stars = stars_from_table(mock.table, sat, source="shared-binaries")
     spec = _spec(tmp_path, "nfw_low", "[0.0, 0.2]")
-    settings = FitSettings(chains=2, warmup=150, draws=150, seed=2, progress=False)
+    settings = tiny_settings(150, 150, 2)
     summary = fit(stars, sat, tmp_path / "out", [str(spec)], settings)
     shared = summary["comparison"]["binaries"]
     assert shared["fraction_range"] == [0.0, 0.2]

@@ -15,46 +15,24 @@ import subprocess
 import sys
 import time
 
-import numpy as np
 import pytest
-from astropy.table import Table
+from fit_setup import NO_EXTRAS, field_catalogue, fit_command, tiny_chains, write_testa
 
 from halo.cli.app import main
 from halo.workspace.record import Workspace
 from halo.workspace.views import history, status
 
-FIT = ["--chains", "2", "--warmup", "150", "--draws", "150", "--no-binaries", "--no-foreground"]
-SATELLITE = """name = "Testa I"
-ra_deg = 151.25
-dec_deg = -23.40
-distance_kpc = 45.0
-distance_err_kpc = 2.5
-r_half_pc = 40.0
-r_half_err_pc = 4.0
-ellipticity = 0.3
-position_angle_deg = 65.0
-stellar_mass_msun = 6000.0
-stellar_mass_err_msun = 1800.0
-"""
+FIT = [*tiny_chains(2), *NO_EXTRAS]
 
 
 def _catalogue(path, ids, seed):
-    rng = np.random.default_rng(seed)
-    t = Table()
-    t["id"] = ids
-    t["ra"] = 151.25 + rng.uniform(-0.02, 0.02, len(ids))
-    t["dec"] = -23.40 + rng.uniform(-0.02, 0.02, len(ids))
-    t["vlos"] = rng.normal(87.0, 8.0, len(ids))
-    t["vlos_err"] = np.full(len(ids), 1.5)
-    t.write(path, format="ascii.ecsv")
-    return path
+    return field_catalogue(path, ids, seed, 8.0, 1.5)
 
 
 @pytest.fixture(scope="module")
 def fitted(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("wsrefit")
-    sat = tmp / "sat.toml"
-    sat.write_text(SATELLITE)
+    sat = write_testa(tmp / "sat.toml", "Testa I")
     paths = {
         "sat": sat,
         "b1": _catalogue(tmp / "b1.ecsv", [f"s{i}" for i in range(12)], 1),
@@ -151,8 +129,7 @@ def test_sigint_during_a_refit_exits_130_and_cleans_up(fitted):
 def test_sigint_during_a_fit_exits_130_and_removes_its_folder(fitted):
     root, paths = fitted
     out = root.parent / "fit-out"
-    args = ["fit", str(paths["b1"]), str(paths["sat"]), "--out", str(out), "--model"]
-    args += ["stars-only", *FIT]
+    args = [*fit_command(paths["b1"], paths["sat"], out, "stars-only"), *FIT]
     code, err = _interrupt(args, root.parent, root.parent / "fit.log")
     assert code == 130, err
     assert "halo: interrupted" in err.splitlines()[-1]
