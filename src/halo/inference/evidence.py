@@ -141,12 +141,17 @@ def unconstrained_draws(model, samples, site_names, batch=1000):
     Returns (array (n, dim), list of (name, size)); ``samples`` is a dict of arrays whose first
     axis runs over draws (chain-major).
     """
+    import jax
     from numpyro.infer.util import unconstrain_fn
 
-    def one(params):
-        return unconstrain_fn(model, (), {}, params)
+    args = getattr(model, "compile_args", ())  # the padded catalogue, an argument (not a constant)
 
-    z = map_draws(one, {k: np.asarray(samples[k]) for k in site_names}, batch=batch)
+    def one(params, args=args):
+        return unconstrain_fn(model, args, {}, params)
+
+    vm = jax.jit(jax.vmap(one, in_axes=(0, None)))
+    draws = {k: np.asarray(samples[k]) for k in site_names}
+    z = map_draws(one, draws, batch=batch, compiled=lambda p: vm(p, args))
     layout = [(k, int(np.prod(np.shape(z[k])[1:]) or 1)) for k in site_names]
     flat = np.concatenate([z[k].reshape(len(z[k]), -1) for k in site_names], axis=1)
     return flat, layout
@@ -172,10 +177,17 @@ def log_evidence(model, samples, site_names, *, chains, seed=0, progress=False, 
             i += size
         return out
 
-    def one(x):
-        return -potential_energy(model, (), {}, unflatten(x))
+    args = getattr(model, "compile_args", ())  # the padded catalogue, an argument (not a constant)
 
-    compiled = jax.jit(jax.vmap(one))  # one compilation for the posterior and proposal draws
+    def one(x, args=args):
+        return -potential_energy(model, args, {}, unflatten(x))
+
+    # one compilation for the posterior and proposal draws, shared by catalogues of a bucket
+    vm = jax.jit(jax.vmap(one, in_axes=(0, None)))
+
+    def compiled(xs):
+        return vm(xs, args)
+
     bar = tqdm(
         total=2 * len(flat) - len(flat) // 2,
         desc="evidence",

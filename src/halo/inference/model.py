@@ -42,11 +42,12 @@ in (ln theta, ln sigma_los) by the not-a-knot cubic spline, kept within 0.05 of 
 range (error at the stars below 1e-4, measured 2e-6 to 4e-5 with the 32 default angles over the
 specs' anisotropy prior, at the FAST solver's level, against a direct solve:
 tests/test_interpolation_at_stars.py; linear interpolation reached 2e-3, the monotone PCHIP cubic
-1.3e-3 at the extrema of sigma_los); the interpolation weights are fixed data, so the cost
-grows with the number of stars only through that interpolation and the sum.
+1.3e-3 at the extrema of sigma_los). The catalogue is an argument of the sampled program,
+padded to a bucket size (:mod:`halo.inference.padding`).
 """
 
 import dataclasses
+import functools
 
 import jax
 import jax.numpy as jnp
@@ -63,6 +64,7 @@ from halo.inference.likelihood import (
     member_log_terms,
     spatial_log_prior,
 )
+from halo.inference.padding import pad_stars
 from halo.inference.systemic import V_SYS_HALF_WIDTH, prior_centres
 from halo.inputs.build import build_anisotropy, build_mass_model
 from halo.physics.anisotropy import symmetrised_to_beta
@@ -83,7 +85,7 @@ class FitData:
     multi-epoch constants of :mod:`halo.inference.likelihood` (zeros and None for plain
     single-epoch data). ``log_prior_member`` / ``log_prior_non``: ln p_i and ln(1 - p_i) from a
     ``member_prob`` column, or None (spatial prior). ``theta_max``: the survey radius (outermost
-    star) [rad].
+    star) [rad]. A JAX pytree: the sampled model takes it as an argument.
     """
 
     v: jnp.ndarray
@@ -100,6 +102,7 @@ class FitData:
     log_prior_member: jnp.ndarray | None = None
     log_prior_non: jnp.ndarray | None = None
     theta_max: jnp.ndarray | None = None
+    mask: jnp.ndarray | None = None  # 1.0 a real star, 0.0 padding (halo.inference.padding)
 
     @property
     def n_stars(self):
@@ -317,6 +320,12 @@ def _membership_prior(data, light, distance):
     )
 
 
+def _observe(fn, data):
+    """The observed site ``v``; padded stars (mask 0) contribute exactly 0."""
+    with numpyro.handlers.mask(mask=True if data.mask is None else data.mask > 0):
+        return numpyro.sample("v", fn, obs=data.v)
+
+
 def _foreground_likelihood(data, foreground, member, consistency, light, distance, fixed):
     """The observed site: each star a mixture of member and non-member (``fixed``: v_center and
     keep_terms of :func:`make_model`)."""
@@ -329,13 +338,13 @@ def _foreground_likelihood(data, foreground, member, consistency, light, distanc
         numpyro.deterministic("ll_foreground", fg)
         numpyro.deterministic("log_prior_member", lp_m)
         numpyro.deterministic("log_prior_non", lp_n)
-    numpyro.sample("v", PerStarLikelihood(jnp.logaddexp(lp_m + member, lp_n + fg)), obs=data.v)
+    _observe(PerStarLikelihood(jnp.logaddexp(lp_m + member, lp_n + fg)), data)
 
 
 def make_model(
     spec, satellite, data, orders=FAST, binaries=None, foreground=None, keep_terms=False
 ):
-    """A numpyro model (no arguments) for ``spec`` fitted to ``data`` (:class:`FitData`).
+    """A numpyro model for ``spec`` fitted to ``data`` (:class:`FitData`).
 
     ``binaries``: None, or a :class:`halo.physics.binaries.BinaryMixture` (the line-of-sight
     velocity distribution of binary orbital motion as a scale mixture of Gaussians). With it,
@@ -350,32 +359,42 @@ def make_model(
     ``keep_terms``: record the per-star terms as deterministic sites (``ll_single``,
     ``ll_binary``, ``ll_foreground``, ``log_prior_member``) for per-star probabilities, and
     ``var_member`` = sigma_los^2 + v_err^2 at each star.
+
+    ``model(inputs=None)``: ``inputs`` a dict of ``data``, ``v_center``, ``fg_range`` (default:
+    ``data`` as given); ``model.compile_args``: the same, stars padded to their bucket
+    (:mod:`halo.inference.padding`), which the sampler passes as arguments of its compiled
+    program so that catalogues of similar size share it; ``model.n_stars``: the real stars.
     """
     rho_c = rho_crit()
     v_center, fg_range = prior_centres(satellite, data)
     b = None if binaries is None else _BinaryTerms.of(binaries)
-    zero = jnp.zeros(data.n_stars)
-    log_c0 = zero if data.log_c0 is None else data.log_c0
-    log_c1 = zero if data.log_c1 is None else data.log_c1
+    f64 = functools.partial(jnp.asarray, dtype=jnp.float64)
+    given = {"data": data, "v_center": f64(v_center), "fg_range": f64(fg_range)}
 
-    def model():
+    def model(inputs=None):
+        inputs = given if inputs is None else inputs
+        d = inputs["data"]
+        log_c0 = jnp.zeros(d.n_stars) if d.log_c0 is None else d.log_c0
+        log_c1 = jnp.zeros(d.n_stars) if d.log_c1 is None else d.log_c1
         v_sys, distance, light, var = _predicted_variance(
-            spec, satellite, data, orders, rho_c, v_center
+            spec, satellite, d, orders, rho_c, inputs["v_center"]
         )
         if keep_terms:
             numpyro.deterministic("var_member", var)
         if b is None and foreground is None:
-            numpyro.sample("v", dist.Normal(v_sys, jnp.sqrt(var)), obs=data.v)
+            _observe(dist.Normal(v_sys, jnp.sqrt(var)), d)
             return
         if b is None:
-            member = log_c0 + dist.Normal(v_sys, jnp.sqrt(var)).log_prob(data.v)
+            member = log_c0 + dist.Normal(v_sys, jnp.sqrt(var)).log_prob(d.v)
             consistency = log_c0
         else:
-            member, consistency = _member_block(data, var, v_sys, log_c0, log_c1, b, keep_terms)
+            member, consistency = _member_block(d, var, v_sys, log_c0, log_c1, b, keep_terms)
         if foreground is None:
-            numpyro.sample("v", PerStarLikelihood(member), obs=data.v)
+            _observe(PerStarLikelihood(member), d)
             return
-        fixed = (fg_range, keep_terms)
-        _foreground_likelihood(data, foreground, member, consistency, light, distance, fixed)
+        fixed = (inputs["fg_range"], keep_terms)
+        _foreground_likelihood(d, foreground, member, consistency, light, distance, fixed)
 
+    model.compile_args = ({**given, "data": pad_stars(data)},)
+    model.n_stars = data.n_stars
     return model

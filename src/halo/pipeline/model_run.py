@@ -62,7 +62,18 @@ def _sample(name, model, latent, settings, start):
         adapt_mass_matrix=start.adapt_mass_matrix,
     )
     samples = {k: np.asarray(v) for k, v in mcmc.get_samples().items()}
-    return az.from_numpyro(mcmc, log_likelihood=True), samples
+    return _real_stars(az.from_numpyro(mcmc, log_likelihood=True), model.n_stars), samples
+
+
+def _real_stars(idata, n):
+    """``idata`` with its per-star groups (pointwise log-likelihood, observed velocities) cut
+    back to the ``n`` real stars: the sampler ran the catalogue padded to its bucket (padded stars
+    contribute 0), so LOO and Pareto k are those of the real stars."""
+    for group in ("log_likelihood", "observed_data"):
+        if group in idata.children:
+            ds = idata[group].to_dataset()
+            idata[group] = ds.isel({d: slice(0, n) for d in ds.dims if d.startswith("v_dim")})
+    return idata
 
 
 def _loo(idata):
