@@ -17,9 +17,8 @@ Always present (nuisances, so that their uncertainties reach every result):
 
 - ``v_sys`` [km/s]: Normal(v_sys_kms, v_sys_err_kms) when the satellite file gives both; else
   uniform within +-V_SYS_HALF_WIDTH of the file's ``v_sys_kms``, or of the peak of the velocity
-  distribution of the stars near the centre (:mod:`halo.inference.systemic`; not the median of
-  the catalogue, which a rich field drags away). The same in every model, so it cancels in Bayes
-  factors;
+  distribution of the stars near the centre (:mod:`halo.inference.systemic`), where every chain
+  starts. The same in every model, so it cancels in Bayes factors;
 - ``distance`` [kpc]: Normal(distance_kpc, distance_err_kpc), truncated at 1/10 of the value;
 - ``r_half_pc`` [pc]: the projected major-axis half-light radius at the file's distance,
   Normal(r_half_pc, r_half_err_pc) truncated positive. The angular size is what is measured, so
@@ -362,8 +361,8 @@ def make_model(
 
     ``model(inputs=None)``: ``inputs`` a dict of ``data``, ``v_center``, ``fg_range`` (default:
     ``data`` as given); ``model.compile_args``: the same, stars padded to their bucket
-    (:mod:`halo.inference.padding`), which the sampler passes as arguments of its compiled
-    program so that catalogues of similar size share it; ``model.n_stars``: the real stars.
+    (:mod:`halo.inference.padding`), arguments of the sampler's compiled program so that
+    catalogues of similar size share it; ``model.n_stars``: the real stars; ``start_values``.
     """
     rho_c = rho_crit()
     v_center, fg_range = prior_centres(satellite, data)
@@ -397,4 +396,5 @@ def make_model(
 
     model.compile_args = ({**given, "data": pad_stars(data)},)
     model.n_stars = data.n_stars
+    model.start_values = {"v_sys": f64(v_center)}  # every chain starts there (sampling.py)
     return model
