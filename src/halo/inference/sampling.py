@@ -36,7 +36,9 @@ def _compiled_chain_map(fn):
     """
     import jax
 
-    bound = dict(fn.keywords)
+    bound = dict(getattr(fn, "keywords", None) or {})
+    if not {"args", "kwargs"} <= bound.keys():  # another numpyro layout: arguments as constants
+        return jax.jit(lambda map_args: jax.lax.map(fn, map_args))
     args, kwargs = bound.pop("args"), bound.pop("kwargs")
 
     def chains(map_args, args, kwargs):
