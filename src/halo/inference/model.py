@@ -362,7 +362,7 @@ def make_model(
     ``model(inputs=None)``: ``inputs`` a dict of ``data``, ``v_center``, ``fg_range`` (default:
     ``data`` as given); ``model.compile_args``: the same, stars padded to their bucket
     (:mod:`halo.inference.padding`), arguments of the sampler's compiled program so that
-    catalogues of similar size share it; ``model.n_stars``: the real stars; ``start_values``.
+    catalogues of similar size share it; ``model.n_stars``: the real stars; ``start_at_mean``.
     """
     rho_c = rho_crit()
     v_center, fg_range = prior_centres(satellite, data)
@@ -396,5 +396,5 @@ def make_model(
 
     model.compile_args = ({**given, "data": pad_stars(data)},)
     model.n_stars = data.n_stars
-    model.start_values = {"v_sys": f64(v_center)}  # every chain starts there (sampling.py)
+    model.start_at_mean = ("v_sys",)  # every chain starts at its prior's mean (sampling.py)
     return model
