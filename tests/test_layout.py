@@ -26,6 +26,7 @@ STAGES = (
     "products",
     "pipeline",
     "workspace",
+    "batch",
     "cli",
 )
 MAX_FILE_LINES = 400
