@@ -3,8 +3,10 @@
 The keys are a contract (see the project's design notes); unknown keys, missing required keys and
 non-physical values raise :class:`halo.core.errors.InputError` with one line naming the file and
 key. A light profile's shape parameters come from the keys its class declares
-(``satellite_keys``, e.g. ``king_concentration`` for the King profile). ``age_gyr`` is read and
-checked (0-14 Gyr) but used by no model or output yet.
+(``satellite_keys``, e.g. ``king_concentration`` for the King profile). ``age_gyr`` (0-14 Gyr)
+with ``age_err_gyr``, ``galactocentric_distance_kpc`` and the systemic proper motion
+(``pm_ra_cosdec_masyr`` and ``pm_dec_masyr``, given together, with their errors) feed the tides
+and survival section (:mod:`halo.results.nature`).
 """
 
 import dataclasses
@@ -23,6 +25,9 @@ __all__ = ["Satellite", "read_satellite", "parse_satellite"]
 _POSITIVE = ("positive", lambda v: v > 0)
 _NONNEG = ("non-negative", lambda v: v >= 0)
 _ANY = ("finite", lambda v: True)
+#: a satellite's systemic proper motion: |mu| < 100 mas/yr (4.74 km/s per mas/yr per kpc: 470
+#: km/s at 1 kpc, beyond any bound orbit)
+_PM = ("between -100 and 100 (mas/yr)", lambda v: -100 < v < 100)
 
 _KEYS = {
     "name": (str, True, None),
@@ -43,6 +48,11 @@ _KEYS = {
     "stellar_ml_v": (list, False, None),
     "galactocentric_distance_kpc": (float, False, _POSITIVE),
     "age_gyr": (float, False, ("between 0 and 14", lambda v: 0 < v <= 14)),
+    "age_err_gyr": (float, False, _NONNEG),
+    "pm_ra_cosdec_masyr": (float, False, _PM),
+    "pm_ra_cosdec_err_masyr": (float, False, _NONNEG),
+    "pm_dec_masyr": (float, False, _PM),
+    "pm_dec_err_masyr": (float, False, _NONNEG),
     "foreground": (list, False, None),
     "v_sys_kms": (float, False, ("between -2000 and 2000", lambda v: -2000 < v < 2000)),
     "v_sys_err_kms": (float, False, _NONNEG),
@@ -70,7 +80,12 @@ class Satellite:
     absolute_magnitude_v_err: float = 0.0
     stellar_ml_v: tuple | None = None
     galactocentric_distance_kpc: float | None = None
-    age_gyr: float | None = None  # read and checked (0-14 Gyr) but used by no model yet
+    age_gyr: float | None = None
+    age_err_gyr: float | None = None  # None: no error given (taken as 0)
+    pm_ra_cosdec_masyr: float | None = None
+    pm_ra_cosdec_err_masyr: float | None = None
+    pm_dec_masyr: float | None = None
+    pm_dec_err_masyr: float | None = None
     foreground: tuple | None = None
     v_sys_kms: float | None = None
     v_sys_err_kms: float | None = None
@@ -192,6 +207,17 @@ def _check_stellar_mass(values, where):
         raise InputError(f"{where} key 'stellar_ml_v' is required with 'absolute_magnitude_v'")
 
 
+#: (key needed, key that needs it)
+_NEEDS = (
+    ("v_sys_kms", "v_sys_err_kms"),
+    ("age_gyr", "age_err_gyr"),
+    ("pm_ra_cosdec_masyr", "pm_ra_cosdec_err_masyr"),
+    ("pm_dec_masyr", "pm_dec_err_masyr"),
+    ("pm_dec_masyr", "pm_ra_cosdec_masyr"),
+    ("pm_ra_cosdec_masyr", "pm_dec_masyr"),
+)
+
+
 def parse_satellite(data, source="<memory>"):
     """Validate a mapping of satellite keys and return a :class:`Satellite`."""
     where = f"{source}:"
@@ -240,8 +266,9 @@ def parse_satellite(data, source="<memory>"):
         values["foreground"] = _foreground(values["foreground"], where)
     _check_plausible(values, where)
     _check_stellar_mass(values, where)
-    if "v_sys_err_kms" in values and "v_sys_kms" not in values:
-        raise InputError(f"{where} key 'v_sys_err_kms' needs 'v_sys_kms'")
+    for needs, key in _NEEDS:
+        if key in values and needs not in values:
+            raise InputError(f"{where} key '{key}' needs '{needs}'")
     return Satellite(**values, source=str(source))
 
 
