@@ -1,0 +1,90 @@
+"""The Dask distributed cluster a batch runs on: a LocalCluster on loopback by default, or an
+existing scheduler's address to scale out.
+
+The local cluster has N worker processes of one thread each, every listener (scheduler, workers,
+nannies, their HTTP status pages) on 127.0.0.1 with a free port: nothing is opened to the
+network, and there is no dashboard beyond those loopback status pages (the dashboard's own
+package is not a dependency). Each worker is told to use one core (the single-threaded XLA CPU
+runtime and one BLAS/OpenMP thread) before it imports JAX, so that N workers on N cores do not
+fight over them.
+"""
+
+import contextlib
+import logging
+import os
+
+from halo.core.errors import InputError
+
+__all__ = ["WORKER_ENV", "default_workers", "batch_client", "LOOPBACK"]
+
+LOOPBACK = "127.0.0.1"
+
+#: environment of every local worker process, set before it imports anything: one core per fit
+WORKER_ENV = {
+    "XLA_FLAGS": "--xla_cpu_multi_thread_eigen=false intra_op_parallelism_threads=1",
+    "OMP_NUM_THREADS": "1",
+    "OPENBLAS_NUM_THREADS": "1",
+    "MKL_NUM_THREADS": "1",
+    "JAX_PLATFORMS": "cpu",
+    "MPLBACKEND": "Agg",
+    "TF_CPP_MIN_LOG_LEVEL": "3",
+}
+
+
+def default_workers():
+    """The number of cores this process may run on (one worker each)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _worker_env():
+    """WORKER_ENV, with the user's own XLA_FLAGS kept in front of the single-thread flags."""
+    env = dict(WORKER_ENV)
+    user = os.environ.get("XLA_FLAGS", "").strip()
+    if user:
+        env["XLA_FLAGS"] = f"{user} {env['XLA_FLAGS']}"
+    return env
+
+
+def _local_cluster(workers):
+    from distributed import LocalCluster
+
+    return LocalCluster(
+        n_workers=workers,
+        threads_per_worker=1,
+        processes=True,
+        host=LOOPBACK,
+        protocol="tcp",
+        scheduler_port=0,
+        dashboard_address=f"{LOOPBACK}:0",
+        worker_dashboard_address=f"{LOOPBACK}:0",
+        silence_logs=logging.CRITICAL,
+        env=_worker_env(),
+    )
+
+
+@contextlib.contextmanager
+def batch_client(scheduler=None, workers=None):
+    """A connected ``distributed.Client``: to ``scheduler`` (an address such as
+    tcp://host:8786) when given, else to a new LocalCluster of ``workers`` processes (default:
+    the core count), closed on exit."""
+    from distributed import Client
+
+    if scheduler is not None:
+        try:
+            client = Client(scheduler, timeout="20s")
+        except (OSError, TimeoutError) as exc:
+            raise InputError(f"--scheduler {scheduler}: cannot connect ({exc})") from None
+        try:
+            yield client
+        finally:
+            client.close()
+        return
+    n = default_workers() if workers is None else workers
+    if isinstance(n, bool) or not isinstance(n, int) or n < 1:
+        raise InputError(f"--workers: expected a positive number of workers, got {n!r}")
+    logging.getLogger("distributed").setLevel(logging.CRITICAL)
+    with _local_cluster(n) as cluster, Client(cluster) as client:
+        yield client
