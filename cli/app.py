@@ -4,7 +4,8 @@ Exit codes: 0 done; 2 bad input or usage (one line on stderr, no traceback); 1 i
 130 interrupted (SIGINT), the unfinished outputs removed.
 
 The commands live in :mod:`halo.cli.run_commands` (models, predict, fit, demo, mock) and
-:mod:`halo.cli.workspace_commands` (init, add, refit, status, history, export); option values
+:mod:`halo.cli.workspace_commands` (init, add, refit, status, history, export) and
+:mod:`halo.cli.batch_commands` (batch); option values
 are parsed by :mod:`halo.cli.options`; what they print is written by
 :mod:`halo.products.console` and :mod:`halo.products.text_report`.
 """
@@ -15,6 +16,7 @@ import sys
 import typer
 from typer.core import TyperCommand, TyperGroup
 
+from halo.cli import batch_commands as batch
 from halo.cli import run_commands as run
 from halo.cli import workspace_commands as ws
 from halo.cli.options import UsageFailure
@@ -97,7 +99,7 @@ app = typer.Typer(
 )
 
 # workflow order: the whole job and a fit first, then the helpers around a fit, then the
-# workspace commands in the order a user meets them
+# workspace commands in the order a user meets them, then many fits at once
 for _name, _command in (
     ("demo", run.demo_cmd),
     ("fit", run.fit_cmd),
@@ -110,6 +112,7 @@ for _name, _command in (
     ("status", ws.status_cmd),
     ("history", ws.history_cmd),
     ("export", ws.export_cmd),
+    ("batch", batch.batch_cmd),
 ):
     app.command(_name, cls=_Command)(_command)
 

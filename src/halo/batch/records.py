@@ -13,11 +13,11 @@ summary.json (Q the quantile summary of the design notes; angles 0.1, 0.2, 0.5 d
 import json
 import math
 
-import numpy as np
 from astropy.table import Table
 
 from halo.core.fileio import write_ecsv, write_json
 from halo.core.vocabulary import JD_CONVENTIONS, QUANTILE_KEYS, STARS_ONLY, angle_keys
+from halo.results.summary import clean
 
 __all__ = ["headline", "write_batch", "read_batch", "table_rows", "BATCH_JSON", "BATCH_ECSV"]
 
@@ -120,7 +120,7 @@ def table_rows(records):
 
 def write_batch(out_dir, records):
     """Write DIR/batch.json and DIR/batch.ecsv atomically (JSON first: the record a rerun reads)."""
-    write_json(out_dir / BATCH_JSON, _json_clean(records))
+    write_json(out_dir / BATCH_JSON, clean(records))
     cols = _columns()
     rows = table_rows(records)
     table = Table({c: [r[c] for r in rows] for c, _ in cols})  # every entry has a row
@@ -129,19 +129,6 @@ def write_batch(out_dir, records):
     table.meta["conventions"] = dict(JD_CONVENTIONS)
     table.meta["note"] = "one row per entry and model; NaN where a value does not apply"
     write_ecsv(out_dir / BATCH_ECSV, table)
-
-
-def _json_clean(obj):
-    """NaN and infinities as null (strict JSON), numpy scalars as Python numbers."""
-    if isinstance(obj, dict):
-        return {str(k): _json_clean(v) for k, v in obj.items()}
-    if isinstance(obj, list | tuple):
-        return [_json_clean(v) for v in obj]
-    if isinstance(obj, np.generic):
-        obj = obj.item()
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return None
-    return obj
 
 
 def read_batch(out_dir):
