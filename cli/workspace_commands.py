@@ -181,14 +181,49 @@ def export_cmd(
     angles_deg: str = typer.Option(
         None, "--angles-deg", metavar="LIST", help="extra cone half-angles, comma-separated [deg]"
     ),
+    half_width_deg: float = typer.Option(
+        None,
+        "--half-width-deg",
+        metavar="DEG",
+        help="half-width of the FITS templates, at most 30 [deg] (default: per model, the "
+        "smallest map holding 99% of the halo's J)",
+    ),
+    pixel_deg: float = typer.Option(
+        None,
+        "--pixel-deg",
+        metavar="DEG",
+        help="pixel side of the templates [deg] (default 0.01 up to 2 deg half-width, else "
+        "half-width / 200)",
+    ),
+    template_draws: int = typer.Option(
+        200, "--template-draws", metavar="N", help="posterior draws averaged in the templates"
+    ),
+    frame: str = typer.Option(
+        "icrs", "--frame", metavar="icrs|galactic", help="celestial frame of the templates' WCS"
+    ),
 ):
     """J- and D-factor tables, posterior draws, FITS templates and the summary of a run."""
+    from astropy.table import Table
+
     from halo.products.console import format_export
     from halo.products.export import export_run
+    from halo.products.jd_tables import headline_lines
+    from halo.products.template_fits import template_lines
     from halo.workspace.record import DB_NAME
     from halo.workspace.views import latest_run_folder
 
     src = Path(source)
     run = latest_run_folder(src) if (src / DB_NAME).is_file() else src
-    written = export_run(run, out, parse_angles(angles_deg, "--angles-deg"))
+    written = export_run(
+        run,
+        out,
+        parse_angles(angles_deg, "--angles-deg"),
+        n_template_draws=template_draws,
+        template_half_width_deg=half_width_deg,
+        pixel_deg=pixel_deg,
+        frame=frame,
+    )
     typer.echo(format_export(run, out, written))
+    table = Table.read(written[0], format="ascii.ecsv")
+    for line in headline_lines(table) + template_lines(written):
+        typer.echo(line)

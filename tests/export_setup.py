@@ -85,7 +85,12 @@ def _export(tmp_path_factory):
     post = nfw_posterior()
     run = make_run(base / "run", post)
     out = base / "out"
-    paths = export_run(run, out, [1.0], n_template_draws=N_TEMPLATE, seed=3)
+    # a 1 deg half-width with 0.01 deg pixels (the cone-sum tolerances of
+    # tests/test_export_templates.py are stated for these pixels); the default extent is tested
+    # in tests/test_fits_options.py
+    paths = export_run(
+        run, out, [1.0], n_template_draws=N_TEMPLATE, seed=3, template_half_width_deg=1.0
+    )
     return {"run": run, "out": out, "paths": paths, "post": post}
 
 

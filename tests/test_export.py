@@ -20,6 +20,7 @@ from export_setup import (
     run_summary,
 )
 
+from halo.core.constants import DEG
 from halo.core.errors import InputError
 from halo.physics.cosmology import rho_crit
 from halo.physics.dark import NFW
@@ -64,21 +65,25 @@ def test_table_quantiles_match_draws(exported):
     out = exported["out"]
     table = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
     draws = Table.read(out / "nfw_draws.ecsv", format="ascii.ecsv")
-    assert list(table["angle_deg"]) == [0.1, 0.2, 0.5, 1.0]
+    assert list(table["angle_label"]) == ["0.1", "0.2", "0.5", "1", "2rh"]
+    assert list(table["half_angle_deg"][:4]) == [0.1, 0.2, 0.5, 1.0]
     assert set(table["model"]) == {"nfw"}
-    assert table.meta["catalogue_sha256"] == SHA
-    assert table.meta["converged"] == {"nfw": True}
+    assert table.meta["run"]["catalogue_sha256"] == SHA
+    assert list(table["converged"]) == [True] * 5 and list(table["preferred"]) == [True] * 5
     assert "exact cone" in table.meta["conventions"]
     assert table["j_mean"].unit == u.GeV**2 / u.cm**5
     assert table["log10_d_median"].unit == u.dex(u.GeV / u.cm**2)
+    assert table["log10_d_std"].unit == u.dex  # a width: plain dex
+    assert not [c for c in table.colnames if "." in c]
+    np.testing.assert_allclose(table["half_angle_deg"][4], np.median(draws["half_angle_2rh_deg"]))
     assert len(draws) == CHAINS * DRAWS
     np.testing.assert_array_equal(draws["distance"], exported["post"]["distance"].ravel())
     for row in table:
-        a = f"{row['angle_deg']:g}"
+        a = row["angle_label"].replace(".", "_")
         for kind in ("j", "d"):
             x = np.asarray(draws[f"log10_{kind}_{a}"])
-            pct = np.percentile(x, [50, 16, 84, 2.5, 97.5])
-            for q, v in zip(("median", "p16", "p84", "p2.5", "p97.5"), pct, strict=True):
+            pct = np.percentile(x, [50, 16, 84, 2.5, 97.5, 95])
+            for q, v in zip(("median", "p16", "p84", "p2_5", "p97_5", "upper95"), pct, strict=True):
                 assert row[f"log10_{kind}_{q}"] == pytest.approx(v, rel=1e-14)
             assert row[f"log10_{kind}_mean"] == pytest.approx(np.mean(x), rel=1e-14)
             assert row[f"log10_{kind}_std"] == pytest.approx(np.std(x), rel=1e-12)
@@ -90,9 +95,11 @@ def test_table_quantiles_match_draws(exported):
     assert (c, d) == divmod(k, DRAWS)
     post = exported["post"]
     nfw = NFW.from_m200_c200(post["m200"][c, d], post["c200"][c, d], rho_c=rho_crit())
-    for a in (0.1, 0.5, 1.0):
+    a_2rh = 2 * post["r_e_kpc"][c, d] / post["distance"][c, d] / DEG  # 2 R_e / d
+    assert draws["half_angle_2rh_deg"][k] == pytest.approx(a_2rh, rel=1e-14)
+    for a, col in ((0.1, "0_1"), (0.5, "0_5"), (1.0, "1"), (a_2rh, "2rh")):
         ref = float(log10_j(nfw, post["distance"][c, d], a))
-        assert draws[f"log10_j_{a:g}"][k] == pytest.approx(ref, abs=1e-12)
+        assert draws[f"log10_j_{col}"][k] == pytest.approx(ref, abs=1e-12)
 
 
 # ----------------------------------------------------------------------------- (d) refusals
@@ -161,9 +168,12 @@ def test_bad_run_folder(tmp_path, damage, where):
 def test_bad_options(exported, tmp_path):
     run = exported["run"]
     for kwargs, text in [
-        ({"angles_deg": [0.0]}, "angles_deg"),
-        ({"angles_deg": [95.0]}, "angles_deg"),
-        ({"n_template_draws": 0}, "n_template_draws"),
+        ({"angles_deg": [0.0]}, "--angles-deg"),
+        ({"angles_deg": [95.0]}, "--angles-deg"),
+        ({"n_template_draws": 0}, "--template-draws"),
+        ({"template_half_width_deg": 31.0}, "--half-width-deg"),
+        ({"pixel_deg": -1.0}, "--pixel-deg"),
+        ({"frame": "fk4"}, "--frame"),
         ({"template_half_width_deg": 5.0, "pixel_deg": 0.001}, "pixels per side"),
     ]:
         with pytest.raises(InputError, match=text):

@@ -124,7 +124,7 @@ def test_template_central_pixels_against_scipy(exported):
 def test_template_wcs(exported):
     data, _, hdr, _, _ = read_template(exported["out"], "dj")
     w = WCS(hdr)
-    assert data.shape == (201, 201)  # default: half-width max(1, 1) deg, 0.01 deg pixels
+    assert data.shape == (201, 201)  # half-width 1 deg, default 0.01 deg pixels
     assert hdr["CTYPE1"] == "RA---TAN" and hdr["CTYPE2"] == "DEC--TAN"
     centre = w.pixel_to_world(hdr["CRPIX1"] - 1, hdr["CRPIX2"] - 1)  # FITS is 1-based
     assert centre.ra.deg == pytest.approx(SAT["ra_deg"], abs=1e-10)

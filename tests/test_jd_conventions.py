@@ -72,7 +72,7 @@ def test_export_states_the_untruncated_haloes(tmp_path_factory):
     out = exported["out"]
     table = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
     assert "untruncated" in table.meta["conventions"]
-    assert table.meta["halo_truncation"] == JD_CONVENTIONS["halo_truncation"]
+    assert table.meta["convention_2rh"] == JD_CONVENTIONS["2rh"]
     draws = Table.read(out / "nfw_draws.ecsv", format="ascii.ecsv")
     assert "untruncated" in draws.meta["conventions"]
     templates = sorted(out.glob("*.fits"))

@@ -185,6 +185,16 @@ def test_export_latest_run(workspace, tmp_path, capsys):
     assert main(["export", str(root), "--out", str(out), "--angles-deg", "0.3"]) == 0
     assert "runs/0004" in capsys.readouterr().out
     t = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
-    assert set(t["model"]) == {"nfw"} and sorted(set(t["angle_deg"])) == [0.1, 0.2, 0.3, 0.5]
+    assert set(t["model"]) == {"nfw"}
+    assert list(t["angle_label"]) == ["0.1", "0.2", "0.3", "0.5", "2rh"]
+    # the fit's own numbers: the preferred rows equal summary.json's log10 J and D per cone
+    run = json.loads((out / "summary.json").read_text())["models"]["nfw"]
+    assert list(t["preferred"]) == [True] * 5 and set(t["converged"]) == {run["converged"]}
+    for row in t[t["angle_label"] != "0.3"]:
+        for kind in ("j", "d"):
+            q = run["derived"][f"log10_{kind}"][row["angle_label"]]
+            for k in ("median", "p2.5", "std"):
+                col = f"log10_{kind}_{k.replace('.', '_')}"
+                assert row[col] == pytest.approx(q[k], rel=1e-13)
     assert (out / "nfw_dj_domega.fits").is_file() and (out / "summary.json").is_file()
     assert main(["export", str(root), "--out", str(out)]) == 2  # never overwrites

@@ -3,10 +3,14 @@
 ``export_run(RUN, OUT)`` reads a fit output folder (``RUN/summary.json`` and
 ``RUN/<model>/posterior.nc``, written by :func:`halo.pipeline.fit.fit`) and writes into OUT::
 
-    OUT/jd_factors.ecsv          one row per (model, cone half-angle): quantiles, mean and std of
-                                 log10 J and log10 D, and the linear posterior means of J and D
+    OUT/jd_factors.ecsv          one row per (model, cone): converged and preferred flags,
+                                 quantiles, mean and std of log10 J and log10 D, their 95% upper
+                                 bound and the linear posterior means of J and D; the cones are
+                                 0.1, 0.2, 0.5 deg, the extra angles and 2rh (2 R_e / d per draw,
+                                 as summary.json's "2rh"); see halo.products.jd_tables
     OUT/<model>_draws.ecsv       per posterior draw: chain, draw, distance, log10 J and log10 D
-    OUT/<model>_dj_domega.fits   dJ/dOmega template on a TAN grid centred on the satellite
+    OUT/<model>_dj_domega.fits   dJ/dOmega template on a TAN grid centred on the satellite (ICRS
+                                 or Galactic WCS)
     OUT/<model>_dd_domega.fits   dD/dOmega template, same grid
     OUT/summary.json             a byte copy of the run's summary
 
@@ -23,8 +27,12 @@ Templates: a pixel's value is dJ/dOmega averaged over the pixel (the pixel's J d
 angle), so sum_ij value_ij Omega_ij is J over the map. The pixel solid angles Omega_ij of the
 gnomonic (TAN) grid are exact (closed form) and stored in the ``SOLIDANG`` extension; header card
 PIXSA holds the central pixel's solid angle and SADEV the largest relative deviation of any pixel's
-solid angle from PIXSA, i.e. the error of the shortcut sum(pixels) * PIXSA. The ``DRAWS`` extension
-lists the posterior draws averaged.
+solid angle from PIXSA, i.e. the error of the shortcut sum(pixels) * PIXSA. The ``NORM``
+extension is the map divided by JINT (DINT) [sr^-1], the shape alone (sum NORM_ij Omega_ij = 1).
+The ``DRAWS`` extension lists the posterior draws averaged. JWHOLE is the mean J of the whole
+halo (inside its truncation radius: the cone arcsin(r_t / d), 80 deg for untruncated haloes) and
+JFRAC = JINT / JWHOLE the fraction the map holds; by default each model's map is the smallest
+half-width whose inscribed cone holds 99% of JWHOLE (:mod:`halo.products.template_extent`).
 
 The work is done by one module per job: :mod:`halo.products.rundir` reads the run folder,
 :mod:`halo.products.jd_draws` evaluates J, D and their profiles per draw,
@@ -66,7 +74,6 @@ Accuracy of each numerical step
    This is a property of the pixel grid, not of the template values.
 """
 
-import math
 import shutil
 from pathlib import Path
 
@@ -77,34 +84,17 @@ from halo.core.fileio import atomic_path, write_ecsv
 from halo.products.jd_draws import jd_draws, needed_sites
 from halo.products.jd_tables import draws_table, export_angles, jd_rows, jd_table
 from halo.products.rundir import SUMMARY_NAME, posterior_path, read_posterior, read_run
-from halo.products.templates import template_grid, template_writers
+from halo.products.template_extent import (
+    MAX_HALF_WIDTH,
+    TemplateOptions,
+    check_options,
+    default_pixel,
+    template_grid,
+)
+from halo.products.templates import template_writers
 from halo.results.derived import parameter_values
 
 __all__ = ["export_run", "MAX_HALF_WIDTH"]
-
-#: largest template half-width [deg] (the TAN grid's distortion stays moderate)
-MAX_HALF_WIDTH = 30.0
-
-
-def _template_size(angles, n_template_draws, half_width_deg, pixel_deg):
-    """(half-width, pixel side) [deg] of the templates, the options checked."""
-    if isinstance(n_template_draws, bool) or int(n_template_draws) != n_template_draws:
-        raise InputError(f"n_template_draws: must be a whole number, got {n_template_draws!r}")
-    if n_template_draws < 1:
-        raise InputError(f"n_template_draws: must be at least 1, got {n_template_draws}")
-    if half_width_deg is None:
-        half = min(MAX_HALF_WIDTH, max(1.0, max(angles)))
-    else:
-        half = half_width_deg
-    if not (math.isfinite(half) and 0.0 < half <= MAX_HALF_WIDTH):
-        raise InputError(
-            f"template_half_width_deg: must be in (0, {MAX_HALF_WIDTH:g}] deg, got {half:g}"
-        )
-    if pixel_deg is None:
-        pixel_deg = 0.01 if half <= 2.0 else half / 200.0
-    if not (math.isfinite(pixel_deg) and 0.0 < pixel_deg <= half):
-        raise InputError(f"pixel_deg: must be positive and at most the half-width, got {pixel_deg}")
-    return half, pixel_deg
 
 
 def _output_files(out_dir, names):
@@ -137,18 +127,17 @@ def _model_draws(run_dir, spec, name):
     }
 
 
-def _export_model(run_dir, name, spec, satellite, summary, angles, tg, options):
+def _export_model(run_dir, name, spec, satellite, summary, angles, opts):
     """(table rows, {kind: writer}) of one model: its draws table and its two templates."""
     draws = _model_draws(run_dir, spec, name)
     jd = jd_draws(spec, satellite, draws["values"], draws["distance"], draws["r_e"], angles)
-    table = draws_table(name, draws, jd, angles, summary)
+    table = draws_table(name, draws, jd, summary)
     writers = {"draws": lambda p, t=table: write_ecsv(p, t)}
     where = posterior_path(run_dir, name)
-    for kind, writer in template_writers(
-        name, spec, satellite, summary, draws, tg, *options, where
-    ):
+    floor = min(MAX_HALF_WIDTH, max(1.0, max(angles)))
+    for kind, writer in template_writers(name, spec, satellite, summary, draws, opts, floor, where):
         writers[kind] = writer
-    return jd_rows(name, jd, angles), writers
+    return jd_rows(name, jd), writers
 
 
 def export_run(
@@ -160,6 +149,7 @@ def export_run(
     template_half_width_deg=None,
     pixel_deg=None,
     seed=0,
+    frame="icrs",
 ):
     """Export J/D tables, posterior draws and dJ/dOmega, dD/dOmega templates of a fit.
 
@@ -169,11 +159,14 @@ def export_run(
     out_dir : folder to write into (created); no existing file is overwritten
     angles_deg : extra cone half-angles [deg] besides 0.1, 0.2 and 0.5
     n_template_draws : int, posterior draws averaged in the templates (all when fewer exist)
-    template_half_width_deg : float, half-width of the templates [deg], at most 30; default
-        max(1, largest export angle), capped at 30
+    template_half_width_deg : float, half-width of the templates [deg], at most 30; default:
+        per model, the smallest of :data:`halo.products.template_extent.HALF_WIDTHS`, at least
+        max(1, largest export angle), whose inscribed cone holds 99% of the mean J of the whole
+        halo (30 when none does); the header card JFRAC says how much the map holds
     pixel_deg : float, pixel side [deg]; default 0.01 up to 2 deg half-width, else
         half-width / 200
     seed : int, seed of the random choice of template draws
+    frame : "icrs" or "galactic", the celestial frame of the templates' WCS
 
     Returns
     -------
@@ -191,8 +184,11 @@ def export_run(
     See the module docstring for the conventions and the accuracy of each numerical step.
     """
     angles = export_angles(angles_deg)
-    half, pixel_deg = _template_size(angles, n_template_draws, template_half_width_deg, pixel_deg)
-    tg = template_grid(half, pixel_deg)
+    opts = check_options(
+        TemplateOptions(n_template_draws, seed, template_half_width_deg, pixel_deg, frame)
+    )
+    if opts.half_width_deg is not None:  # a grid too large is refused before any work
+        template_grid(opts.half_width_deg, opts.pixel_deg or default_pixel(opts.half_width_deg))
 
     run_dir, out_dir = Path(run_dir), Path(out_dir)
     summary, satellite, specs = read_run(run_dir)
@@ -205,12 +201,12 @@ def export_run(
     rows, writers = [], {}
     for name, spec in specs.items():
         model_rows, model_writers = _export_model(
-            run_dir, name, spec, satellite, summary, angles, tg, (n_template_draws, seed)
+            run_dir, name, spec, satellite, summary, angles, opts
         )
         rows += model_rows
         for kind, writer in model_writers.items():
             writers[files[(name, kind)]] = writer
-    table = jd_table(rows, angles, summary, specs, satellite)
+    table = jd_table(rows, summary, list(specs), satellite)
     writers[files["table"]] = lambda p: write_ecsv(p, table)
     writers[files["summary"]] = lambda p: _copy_atomic(run_dir / SUMMARY_NAME, p)
     out_dir.mkdir(parents=True, exist_ok=True)

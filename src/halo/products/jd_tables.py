@@ -1,5 +1,9 @@
-"""The tables of an export: jd_factors.ecsv (quantiles of log10 J and log10 D per model and cone)
-and <model>_draws.ecsv (log10 J and log10 D per posterior draw)."""
+"""The tables of an export: jd_factors.ecsv (quantiles of log10 J and log10 D per model and cone,
+with per-row ``converged`` and ``preferred`` flags, for likelihood code) and <model>_draws.ecsv
+(log10 J and log10 D per posterior draw); the headline lines ``halo export`` prints.
+
+Column names hold no dots (``log10_j_p2_5`` for the 2.5th percentile, ``log10_j_0_1`` for the
+0.1 deg cone of a draws table), so that expression languages and SQL take them as they are."""
 
 import math
 
@@ -9,25 +13,47 @@ from halo import __version__
 from halo.core.errors import InputError
 from halo.core.quantiles import quantiles
 from halo.core.vocabulary import (
-    HALO_TRUNCATION,
-    JD_CONVENTIONS,
+    ANGLE_2RH_CONVENTION,
     QUANTILE_KEYS,
     STANDARD_ANGLES,
     angle_key,
 )
 
-__all__ = ["export_angles", "draws_table", "jd_rows", "jd_table", "CONVENTIONS"]
+__all__ = [
+    "export_angles",
+    "draws_table",
+    "jd_rows",
+    "jd_table",
+    "preferred_model",
+    "headline_lines",
+    "column_key",
+    "CONVENTIONS",
+    "USAGE",
+    "UPPER_PERCENTILE",
+]
+
+#: percentile of log10 J and log10 D given as the upper bound (column log10_*_upper95)
+UPPER_PERCENTILE = 95.0
 
 CONVENTIONS = (
-    "J(theta) = Int_cone dOmega Int_los rho^2 dl and D(theta) = Int_cone dOmega Int_los rho dl "
-    "in a cone of half-angle angle_deg around the satellite centre (solid angle "
-    "2 pi (1 - cos theta)), "
-    "computed for the exact cone (no small-angle approximation). Each posterior draw uses its own "
-    "distance, so the distance uncertainty is propagated. log10_* columns summarise log10 J or "
-    "log10 D (median, 16/84 and 2.5/97.5 percentiles, mean and standard deviation of log10, "
-    "i.e. a log-normal summary); j_mean and d_mean are posterior means of J and D (linear). "
-    + HALO_TRUNCATION
+    "J = Int dOmega Int_los rho^2 dl, D = Int dOmega Int_los rho dl in the exact cone of "
+    "half-angle half_angle_deg (no small-angle approximation), each draw at its own distance; "
+    "haloes untruncated (no tidal radius): a truncated halo gives less, most at wide angles and "
+    "for D."
 )
+
+#: what the columns are for (the header's few lines)
+USAGE = [
+    "One row per model and cone; select converged & preferred for one row per cone.",
+    "angle_label: half-angle in deg, or 2rh (see convention_2rh; half_angle_deg: its median).",
+    "log10_*: quantiles, mean, std [dex] of log10 J, D; *_upper95: the 95% upper bound (quote "
+    "it when the dispersion is not resolved); j_mean, d_mean: linear means.",
+]
+
+
+def column_key(label):
+    """A label inside a column name, without dots: "p2.5" -> "p2_5", "0.1" -> "0_1"."""
+    return str(label).replace(".", "_")
 
 
 def _units():
@@ -41,15 +67,15 @@ def export_angles(angles_deg):
     extra = [] if angles_deg is None else list(np.atleast_1d(np.asarray(angles_deg, dtype=float)))
     for a in extra:
         if not (math.isfinite(a) and 0.0 < a < 90.0):
-            raise InputError(f"angles_deg: cone half-angles must be in (0, 90) deg, got {a:g}")
+            raise InputError(f"--angles-deg: cone half-angles must be in (0, 90) deg, got {a:g}")
     by_label = {}
     for a in sorted(set(STANDARD_ANGLES) | set(float(x) for x in extra)):
         by_label.setdefault(angle_key(a), a)
     return list(by_label.values())
 
 
-def draws_table(name, draws, jd, angles, summary):
-    """<model>_draws.ecsv: chain, draw, distance and log10 J, log10 D per cone for every draw."""
+def draws_table(name, draws, jd, summary):
+    """<model>_draws.ecsv: chain, draw, distance, the 2rh angle and log10 J, log10 D per cone."""
     import astropy.units as u
     from astropy.table import Table
 
@@ -58,69 +84,151 @@ def draws_table(name, draws, jd, angles, summary):
     t["draw"] = draws["draw"]
     t["distance"] = draws["distance"]
     t["distance"].unit = u.kpc
-    for i, a in enumerate(angles):
+    t["half_angle_2rh_deg"] = jd["angle_2rh_deg"]
+    t["half_angle_2rh_deg"].unit = u.deg
+    for i, label in enumerate(jd["labels"]):
         for kind, unit in _units():
-            col = f"log10_{kind}_{angle_key(a)}"
+            col = f"log10_{kind}_{column_key(label)}"
             t[col] = jd[f"log10_{kind}"][:, i]
             t[col].unit = u.dex(unit)
-            t[col].description = f"log10 {kind.upper()} in a cone of {angle_key(a)} deg"
     t.meta["model"] = name
-    t.meta["catalogue_sha256"] = summary["catalogue"]["sha256"]
     t.meta["converged"] = bool(summary["models"][name]["converged"])
+    t.meta["columns"] = (
+        "log10_j_<cone>, log10_d_<cone>: log10 J, D per draw; <cone> = half-angle in deg with "
+        "'_' for '.', or 2rh (the cone of half_angle_2rh_deg)"
+    )
+    t.meta["catalogue_sha256"] = summary["catalogue"]["sha256"]
     t.meta["conventions"] = CONVENTIONS
-    t.meta["halo_truncation"] = JD_CONVENTIONS["halo_truncation"]
+    t.meta["convention_2rh"] = ANGLE_2RH_CONVENTION
     return t
 
 
-def jd_rows(name, jd, angles):
-    """One row per cone: quantiles of log10 J and log10 D, linear means and the finite draws."""
+def _summary_of(x):
+    """(quantiles with NaN when nothing is finite, 95% upper bound, linear mean, finite count)."""
+    ok = np.isfinite(x)
+    qd = quantiles(x)
+    if qd is None:
+        return {k: math.nan for k in QUANTILE_KEYS}, math.nan, math.nan, 0
+    upper = float(np.percentile(x[ok], UPPER_PERCENTILE))
+    return qd, upper, float(np.mean(10.0 ** x[ok])), int(np.sum(ok))
+
+
+def jd_rows(name, jd):
+    """One row per cone of :func:`halo.products.jd_draws.jd_draws`'s output ``jd``."""
     rows = []
-    for i, a in enumerate(angles):
-        row = {"model": name, "angle": a}
-        n_ok = 0
+    for i, label in enumerate(jd["labels"]):
+        row = {
+            "model": name,
+            "label": label,
+            "half_angle": jd["half_angle_deg"][i],
+        }
+        counts = []
         for kind in ("j", "d"):
-            x = jd[f"log10_{kind}"][:, i]
-            ok = np.isfinite(x)
-            n_ok = int(np.sum(ok)) if kind == "j" else min(n_ok, int(np.sum(ok)))
-            qd = quantiles(x)
-            row[f"log10_{kind}"] = {k: math.nan for k in QUANTILE_KEYS} if qd is None else qd
-            row[f"{kind}_mean"] = float(np.mean(10.0 ** x[ok])) if ok.any() else math.nan
-        row["n"] = n_ok
+            qd, upper, mean, n = _summary_of(np.asarray(jd[f"log10_{kind}"][:, i], float))
+            row[f"log10_{kind}"], row[f"{kind}_upper"], row[f"{kind}_mean"] = qd, upper, mean
+            counts.append(n)
+        row["n"] = min(counts)
         rows.append(row)
     return rows
 
 
-def jd_table(rows, angles, summary, specs, satellite):
-    """jd_factors.ecsv: the rows of :func:`jd_rows` of every model, with the run's provenance."""
+def _ln_b(entry):
+    v = (entry.get("vs_stars_only") or {}).get("ln_bayes_factor")
+    return None if v is None or not math.isfinite(v) else float(v)
+
+
+def preferred_model(summary, names):
+    """(preferred dark model, the rule as a sentence, {"next", "delta_ln_z", "err"} or None).
+
+    The preferred model is the dark model with the largest ln Bayes factor against stars only
+    (the same evidence for every model, so the largest evidence) among the converged ones, or
+    among all when none converged; the first listed when the run has no evidence.
+    """
+    models = summary["models"]
+    scored = [n for n in names if _ln_b(models[n]) is not None]
+    if not scored:
+        return names[0], "no evidence in the run: preferred is the first dark model listed", None
+    conv = [n for n in scored if models[n].get("converged")]
+    pool = sorted(conv or scored, key=lambda n: -_ln_b(models[n]))
+    rule = "the converged dark model with the largest ln Bayes factor against stars only"
+    if not conv:
+        rule = rule.replace("converged dark", "dark") + " (none converged)"
+    margin = None
+    if len(pool) > 1:
+        a, b = models[pool[0]], models[pool[1]]
+        ea = (a.get("evidence") or {}).get("log_z_err") or 0.0
+        eb = (b.get("evidence") or {}).get("log_z_err") or 0.0
+        margin = {
+            "next": pool[1],
+            "delta_ln_z": _ln_b(a) - _ln_b(b),
+            "err": float(math.hypot(ea, eb)),
+        }
+    return pool[0], rule, margin
+
+
+def _add_quantile_columns(t, rows, kind, unit):
+    import astropy.units as u
+
+    for q in QUANTILE_KEYS:
+        col = f"log10_{kind}_{column_key(q)}"
+        t[col] = np.array([r[f"log10_{kind}"][q] for r in rows], float)
+        t[col].unit = u.dex if q == "std" else u.dex(unit)
+    col = f"log10_{kind}_upper95"
+    t[col] = np.array([r[f"{kind}_upper"] for r in rows], float)
+    t[col].unit = u.dex(unit)
+    t[f"{kind}_mean"] = np.array([r[f"{kind}_mean"] for r in rows], float)
+    t[f"{kind}_mean"].unit = unit
+
+
+def jd_table(rows, summary, names, satellite):
+    """jd_factors.ecsv: the rows of :func:`jd_rows` of the models ``names``, flagged, with the
+    run's provenance and a few lines on what each column is for (meta ``usage``)."""
     import astropy.units as u
     from astropy.table import Table
 
+    best, rule, margin = preferred_model(summary, list(names))
+    conv = {m: bool(summary["models"][m]["converged"]) for m in names}
     t = Table()
     t["model"] = [r["model"] for r in rows]
-    t["angle_deg"] = np.array([r["angle"] for r in rows], float)
-    t["angle_deg"].unit = u.deg
-    t["angle_deg"].description = "cone half-angle"
+    t["angle_label"] = [r["label"] for r in rows]
+    t["half_angle_deg"] = np.array([r["half_angle"] for r in rows], float)
+    t["half_angle_deg"].unit = u.deg
+    t["converged"] = np.array([conv[r["model"]] for r in rows], bool)
+    t["preferred"] = np.array([r["model"] == best for r in rows], bool)
     for kind, unit in _units():
-        lin = f"{kind}_mean"
-        for q in QUANTILE_KEYS:
-            col = f"log10_{kind}_{q}"
-            t[col] = np.array([r[f"log10_{kind}"][q] for r in rows], float)
-            t[col].unit = u.dex(unit)
-            t[col].description = f"{q} of log10 {kind.upper()} over the posterior draws"
-        t[lin] = np.array([r[lin] for r in rows], float)
-        t[lin].unit = unit
-        t[lin].description = f"posterior mean of {kind.upper()} (linear)"
+        _add_quantile_columns(t, rows, kind, unit)
     t["n_draws"] = np.array([r["n"] for r in rows], int)
-    t["n_draws"].description = "posterior draws with finite values"
-    t.meta["satellite"] = satellite.name
-    t.meta["ra_deg"] = satellite.ra_deg
-    t.meta["dec_deg"] = satellite.dec_deg
-    t.meta["catalogue_sha256"] = summary["catalogue"]["sha256"]
-    t.meta["created"] = summary["created"]
-    t.meta["version"] = summary["version"]
-    t.meta["export_version"] = __version__
-    t.meta["converged"] = {m: bool(summary["models"][m]["converged"]) for m in specs}
-    t.meta["angles_deg"] = [float(a) for a in angles]
+    t.meta["usage"] = list(USAGE)
+    t.meta["preferred_rule"] = rule
+    if margin is not None:
+        t.meta["preferred_over_next"] = margin
+    resolved = (summary.get("dispersion") or {}).get("resolved")
+    if resolved is not None:
+        t.meta["dispersion_resolved"] = bool(resolved)
+    t.meta["convention_2rh"] = ANGLE_2RH_CONVENTION
     t.meta["conventions"] = CONVENTIONS
-    t.meta["halo_truncation"] = JD_CONVENTIONS["halo_truncation"]
+    t.meta["run"] = {
+        "satellite": satellite.name,
+        "ra_deg": satellite.ra_deg,
+        "dec_deg": satellite.dec_deg,
+        "catalogue_sha256": summary["catalogue"]["sha256"],
+        "created": summary["created"],
+        "version": summary["version"],
+        "export_version": __version__,
+    }
     return t
+
+
+def headline_lines(table, label="0.5"):
+    """One line per model: log10 J in the ``label`` cone, median +- std [dex], its 95% upper
+    bound, the convergence state and whether the model is the preferred one."""
+    lines = []
+    for row in table[table["angle_label"] == label]:
+        state = "converged" if row["converged"] else "NOT CONVERGED"
+        pref = ", preferred" if row["preferred"] else ""
+        lines.append(
+            f"{row['model']}: log10 J({label} deg) = {row['log10_j_median']:.2f} +- "
+            f"{row['log10_j_std']:.2f} dex (median +- std; 95% upper "
+            f"{row['log10_j_upper95']:.2f}) [GeV^2 cm^-5], {state}{pref}"
+        )
+    return lines
