@@ -10,6 +10,8 @@ extension) with the columns, matched case-insensitively:
 - ``vlos_err``     its 1-sigma uncertainty [km/s]
 - ``mjd``          optional epoch [day]
 - ``member_prob``  optional membership probability in [0, 1]
+- ``feh``, ``feh_err``  optional [Fe/H] and its 1-sigma error [dex], per epoch or per star; an
+                   empty cell or NaN is a value not measured (:mod:`halo.inputs.feh`)
 
 Other names map onto these with overrides ``{"vlos": "VHEL"}`` (see
 :func:`halo.inputs.columns.parse_column_overrides`). Units come from the file where a column
@@ -42,6 +44,7 @@ from halo.inputs.columns import (
     resolve_columns,
 )
 from halo.inputs.epochs import MIN_STARS, merge_epochs
+from halo.inputs.feh import merge_feh
 from halo.inputs.sky import angle_to_kpc, projected_offsets
 
 __all__ = [
@@ -80,7 +83,9 @@ class StarData:
     ``v`` with ``chi2_dof = n_epochs - 1`` degrees of freedom and its p-value ``p_var`` (NaN for a
     single epoch), ``member_prob`` (None when the catalogue has no such column; the mean over
     epochs otherwise), offsets ``xi_deg`` (east) and ``eta_deg`` (north) from the satellite centre,
-    ``radius_ell_deg`` the elliptical (major-axis) radius and ``radius_deg`` the circularised one.
+    ``radius_ell_deg`` the elliptical (major-axis) radius and ``radius_deg`` the circularised one;
+    ``feh`` and ``feh_err`` [dex] the inverse-variance mean of the star's measured [Fe/H] and its
+    error (NaN where not measured or without the columns; :mod:`halo.inputs.feh`).
 
     Per epoch (length ``n_epochs_total``, grouped by star in star order, by mjd within a star):
     ``epoch_star`` index into the star arrays, ``epoch_v``, ``epoch_err`` [km/s], ``epoch_mjd``
@@ -126,10 +131,17 @@ class StarData:
     epoch_row: np.ndarray
     notes: tuple = ()
     warnings: tuple = ()
+    feh: np.ndarray | None = None
+    feh_err: np.ndarray | None = None
 
     @property
     def n_stars(self):
         return len(self.id)
+
+    @property
+    def has_feh(self):
+        """Whether any star has a measured [Fe/H]."""
+        return self.feh is not None and bool(np.isfinite(self.feh).any())
 
     @property
     def n_epochs_total(self):
@@ -154,6 +166,8 @@ class StarData:
             t[name] = getattr(self, name)
         if self.member_prob is not None:
             t["member_prob"] = self.member_prob
+        if self.has_feh:
+            t["feh"], t["feh_err"] = self.feh, self.feh_err
         for name in ("xi_deg", "eta_deg", "radius_ell_deg", "radius_deg"):
             t[name] = getattr(self, name) * u.deg
         return t
@@ -209,7 +223,8 @@ def read_catalogue(path, satellite, columns=None, **kwargs):
         counted) and the column: unreadable file, unknown extension, missing or ambiguous columns,
         missing, non-numeric or non-finite values, unconvertible units, errors <= 0, ra outside
         [0, 360), dec outside [-90, 90], member_prob outside [0, 1], repeated (id, mjd), stars
-        90 deg or more from the centre, fewer than 3 stars.
+        90 deg or more from the centre, fewer than 3 stars; feh without feh_err (or the
+        reverse), feh outside [-8, 2] dex, a feh without a positive feh_err on its row.
     """
     path = Path(path)
     table, data, read_notes = _read_table(path)
@@ -251,7 +266,9 @@ def stars_from_table(
     values, unit_notes = column_values(table, roles, where)
     ep = merge_epochs(table, roles, values, where, min_stars)
     off, s_ra, s_dec = _star_offsets(values, ep, satellite, roles, where)
-    warns = ep.warnings + _warnings(
+    fe = merge_feh(values, ep.star, len(ep.star_ids))
+    warns = [*ep.warnings, *fe.warnings]
+    warns += _warnings(
         off.radius_ell_deg, ep.merged["v"], ep.star_ids, satellite, roles, few_stars, far_r_half
     )
     key, mjd = ep.order, values.get("mjd")
@@ -268,6 +285,8 @@ def stars_from_table(
         epoch_err=values["vlos_err"][key],
         epoch_mjd=np.full(len(table), np.nan) if mjd is None else mjd[key],
         epoch_row=key + 1,
+        feh=fe.feh,
+        feh_err=fe.feh_err,
     )
     for a in arrays.values():
         if a is not None:
@@ -282,7 +301,7 @@ def stars_from_table(
         centre_dec_deg=float(sat.dec_deg),
         ellipticity=float(sat.ellipticity),
         position_angle_deg=float(sat.position_angle_deg),
-        notes=(*read_notes, *unit_notes, *ep.notes),
+        notes=(*read_notes, *unit_notes, *ep.notes, *fe.notes),
         warnings=tuple(warns),
         **arrays,
     )

@@ -1,10 +1,11 @@
 """Catalogue columns: the roles (``id``, ``ra``, ``dec``, ``vlos``, ...), matched to a file's
 column names case-insensitively with user overrides, and read as checked numbers in the roles'
-units."""
+units (``feh`` and ``feh_err`` in dex, checked in :mod:`halo.inputs.feh`)."""
 
 import astropy.units as u
 
 from halo.core.errors import InputError
+from halo.inputs.feh import check_feh
 from halo.inputs.values import check_range, numbers
 
 __all__ = ["COLUMNS", "parse_column_overrides", "resolve_columns", "column_values"]
@@ -18,7 +19,11 @@ COLUMNS = {
     "vlos_err": (True, u.km / u.s),
     "mjd": (False, u.day),
     "member_prob": (False, u.dimensionless_unscaled),
+    "feh": (False, u.dex),
+    "feh_err": (False, u.dex),
 }
+#: roles whose cells may be empty or NaN (not measured)
+_MAY_BE_MISSING = ("feh", "feh_err")
 _UNIT_TEXT = {"ra": "deg", "dec": "deg", "vlos": "km/s", "vlos_err": "km/s"}
 
 
@@ -91,10 +96,15 @@ def resolve_columns(colnames, overrides, where):
 def column_values(table, roles, where):
     """Numeric columns in deg, km/s, day, checked; notes on columns without a unit."""
     values, no_unit = {}, {"deg": [], "km/s": []}
-    for role in ("ra", "dec", "vlos", "vlos_err", "mjd", "member_prob"):
+    for role in ("ra", "dec", "vlos", "vlos_err", "mjd", "member_prob", *_MAY_BE_MISSING):
         if role in roles:
             values[role], has_unit = numbers(
-                table[roles[role]], role, roles[role], where, COLUMNS[role][1]
+                table[roles[role]],
+                role,
+                roles[role],
+                where,
+                COLUMNS[role][1],
+                missing_ok=role in _MAY_BE_MISSING,
             )
             if not has_unit and role in _UNIT_TEXT:
                 no_unit[_UNIT_TEXT[role]].append(roles[role])
@@ -113,4 +123,5 @@ def column_values(table, roles, where):
     if "member_prob" in values:
         p = values["member_prob"]
         check_range(p, (p >= 0) & (p <= 1), "must be in [0, 1]", roles["member_prob"], where)
+    check_feh(values, roles, where)
     return values, notes

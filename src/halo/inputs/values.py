@@ -17,9 +17,14 @@ def fail(where, row, name, text):
     raise InputError(f"{where} row {row + 1}, column '{name}': {text}")
 
 
-def _floats(col, name, where):
+def _text(x):
+    return x.decode(errors="replace") if isinstance(x, bytes) else str(x)
+
+
+def _floats(col, name, where, missing_ok=False):
     """(float64 values of a column, the unit it carries or None); InputError on a missing,
-    non-numeric or non-finite value."""
+    non-numeric or non-finite value (``missing_ok``: a missing value or NaN is NaN, not an
+    error; infinities still are)."""
     unit = None
     if isinstance(col, Time):
         data, unit = col.mjd, u.day
@@ -33,8 +38,13 @@ def _floats(col, name, where):
         raise InputError(f"{where} column '{name}' must hold one value per row")
     if raw.dtype.kind in "iuf":
         vals = raw.astype(np.float64)
+        if missing_ok:  # a missing value is NaN; only infinities are errors
+            vals[mask] = np.nan
+            mask = np.zeros_like(mask)
         with np.errstate(invalid="ignore"):
             bad = mask | ~np.isfinite(vals)
+        if missing_ok:
+            bad &= ~np.isnan(vals)
         if bad.any():
             i = int(np.argmax(bad))
             fail(where, i, name, "missing value" if mask[i] else f"not finite ({float(vals[i])!r})")
@@ -43,20 +53,24 @@ def _floats(col, name, where):
         raise InputError(f"{where} column '{name}' holds true/false values, not numbers")
     vals = np.empty(len(raw))
     for i, x in enumerate(raw):
+        if missing_ok and (mask[i] or not _text(x).strip()):
+            vals[i] = np.nan
+            continue
         if mask[i]:
             fail(where, i, name, "missing value")
         try:
             vals[i] = float(x.decode() if isinstance(x, bytes) else x)
         except (TypeError, ValueError, UnicodeDecodeError):
             fail(where, i, name, f"not a number ({str(x)[:40]!r})")
-        if not math.isfinite(vals[i]):
+        if not (math.isfinite(vals[i]) or (missing_ok and math.isnan(vals[i]))):
             fail(where, i, name, f"not finite ({float(vals[i])!r})")
     return vals, unit
 
 
-def numbers(col, role, name, where, target):
-    """(float64 values in ``target`` units (astropy), whether the column carried a unit)."""
-    vals, unit = _floats(col, name, where)
+def numbers(col, role, name, where, target, missing_ok=False):
+    """(float64 values in ``target`` units (astropy), whether the column carried a unit);
+    ``missing_ok``: missing values and NaN come out as NaN (a value not measured)."""
+    vals, unit = _floats(col, name, where, missing_ok)
     if unit is None or unit == u.dimensionless_unscaled:
         return vals, False
     if role == "mjd" and str(unit).lower() in ("mjd", "day", "days", "d"):

@@ -49,6 +49,7 @@ from halo.core.errors import InputError
 from halo.inputs.satellite import Satellite, parse_satellite
 from halo.mock.binaries_epochs import observe_members, population
 from halo.mock.foreground import with_foreground
+from halo.mock.metallicity import with_metallicities
 from halo.mock.positions import sample_positions
 from halo.mock.sky import ellipse_offsets, sky_coordinates
 from halo.mock.velocities import (
@@ -235,6 +236,7 @@ def make_mock(
     n_foreground=0,
     foreground_components=None,
     field_radius_pc=None,
+    metallicity=None,
 ):
     """Mock velocity catalogue of a satellite with a known truth.
 
@@ -275,6 +277,9 @@ def make_mock(
         5 major-axis half-light radii), with velocities from ``foreground_components``: (offset
         from v_sys, sigma, weight) [km/s], default ((50, 40, 0.6), (-30, 90, 0.4)) (a broad
         two-component stand-in for a Galactic field, common practice)
+    metallicity : None, or a :class:`halo.mock.metallicity.MockMetallicity`: ``feh`` and
+        ``feh_err`` columns [dex] drawn from its own random stream (the kinematics stay as
+        without it), ``truth["metallicity"]`` and the members' ``feh_true`` in ``stars``
 
     Returns
     -------
@@ -327,4 +332,6 @@ def make_mock(
         )  # fmt: skip
     table.meta["truth"] = truth
     stars = _star_truth(pos, vel, xi, eta, v_true, obs, sat.ellipticity)
+    if metallicity is not None:  # in place: the table keeps its meta
+        table, stars["feh_true"] = with_metallicities(table, truth, n_stars, metallicity, seed)
     return MockCatalogue(table=table, truth=truth, stars=stars)
