@@ -29,6 +29,9 @@ Liang 1987, case 5): the false-resolution rate is 0.5 P(chi^2_1 > 4) = 0.023.
 Sampling: NUTS through :func:`halo.inference.sampling.run_nuts`; the stars are padded to a bucket
 size with a mask and passed as arguments of the compiled program (as in
 :mod:`halo.inference.padding`), so that every catalogue of a similar size reuses one program.
+The inputs carry a leading axis of K catalogues (K = 1 for a fit): K independent catalogues
+stacked by :func:`stack_inputs` are K independent posteriors in one run (their joint density is
+the product), so that a calibration over many mocks compiles and runs once.
 """
 
 import jax.numpy as jnp
@@ -43,6 +46,7 @@ __all__ = [
     "FIELD_FEH",
     "RESOLVED_TWO_DELTA_LN_L",
     "feh_inputs",
+    "stack_inputs",
     "make_feh_model",
     "log_likelihood",
     "spread_test",
@@ -91,22 +95,36 @@ def feh_inputs(feh, feh_err, member_prob=None, field=FIELD_FEH, size=None):
         "mean_prior": jnp.asarray(MEAN_PRIOR_DEX, dtype=jnp.float64),
         "spread_max": jnp.asarray(SPREAD_MAX_DEX, dtype=jnp.float64),
     }
-    return inputs, n
+    return {k: v[None] for k, v in inputs.items()}, n
+
+
+def stack_inputs(catalogues, field=FIELD_FEH):
+    """K catalogues ``[(feh, feh_err, member_prob), ...]`` as one set of inputs (leading axis K,
+    stars padded to the bucket of the largest); returns (inputs, star counts)."""
+    size = bucket_size(max(int(np.isfinite(np.asarray(c[0], float)).sum()) for c in catalogues))
+    parts = [feh_inputs(*c, field=field, size=size) for c in catalogues]
+    inputs = {k: jnp.concatenate([p[0][k] for p in parts]) for k in parts[0][0]}
+    return inputs, [p[1] for p in parts]
 
 
 def _per_star(xp, inputs, mu, spread):
-    """Per-star mixture log-likelihood (``xp``: numpy or jax.numpy)."""
+    """Per-star mixture log-likelihood (``xp``: numpy or jax.numpy); ``mu`` and ``spread``
+    broadcast against the stars (last axis), the field (mean, sigma) is the last axis of
+    ``inputs["field"]``."""
     x, e2 = inputs["feh"], inputs["err"] ** 2
+    f_mean, f_sigma = inputs["field"][..., :1], inputs["field"][..., 1:]
     var_m = spread**2 + e2
-    var_f = inputs["field"][1] ** 2 + e2
+    var_f = f_sigma**2 + e2
     log_m = -0.5 * ((x - mu) ** 2 / var_m + xp.log(2 * np.pi * var_m))
-    log_f = -0.5 * ((x - inputs["field"][0]) ** 2 / var_f + xp.log(2 * np.pi * var_f))
+    log_f = -0.5 * ((x - f_mean) ** 2 / var_f + xp.log(2 * np.pi * var_f))
     return xp.logaddexp(inputs["log_p"] + log_m, inputs["log_q"] + log_f)
 
 
 def log_likelihood(inputs, mu, spread):
-    """Total log-likelihood (JAX, differentiable) of the real (mask 1) stars."""
-    return jnp.sum(inputs["mask"] * _per_star(jnp, inputs, mu, spread))
+    """Log-likelihood of each catalogue (shape (K,); JAX, differentiable) over its real (mask 1)
+    stars; ``mu``, ``spread`` of shape (K,)."""
+    per = _per_star(jnp, inputs, jnp.asarray(mu)[:, None], jnp.asarray(spread)[:, None])
+    return jnp.sum(inputs["mask"] * per, axis=-1)
 
 
 def make_feh_model(inputs, fixed_spread=None):
@@ -119,68 +137,68 @@ def make_feh_model(inputs, fixed_spread=None):
     import numpyro.distributions as dist
 
     def model(inputs=inputs):
-        lo, hi = inputs["mean_prior"][0], inputs["mean_prior"][1]
-        mu = numpyro.sample("mean_feh", dist.Uniform(lo, hi))
-        if fixed_spread is None:
-            spread = numpyro.sample("spread_feh", dist.Uniform(0.0, inputs["spread_max"]))
-        else:
-            spread = jnp.asarray(float(fixed_spread))
-        numpyro.factor("feh", log_likelihood(inputs, mu, spread))
+        k = inputs["feh"].shape[0]
+        lo, hi = inputs["mean_prior"][:, 0], inputs["mean_prior"][:, 1]
+        with numpyro.plate("catalogues", k):
+            mu = numpyro.sample("mean_feh", dist.Uniform(lo, hi))
+            if fixed_spread is None:
+                spread = numpyro.sample("spread_feh", dist.Uniform(0.0, inputs["spread_max"]))
+            else:
+                spread = jnp.full(k, float(fixed_spread))
+        numpyro.factor("feh", jnp.sum(log_likelihood(inputs, mu, spread)))
 
     model.compile_args = (inputs,)
     model.latent = ("mean_feh",) if fixed_spread is not None else ("mean_feh", "spread_feh")
     return model
 
 
-def _real(inputs):
-    """The real stars' arrays as numpy (for the test below, outside any trace)."""
-    m = np.asarray(inputs["mask"]) > 0
-    out = {k: np.asarray(inputs[k])[m] for k in ("feh", "err", "log_p", "log_q")}
-    out["field"] = np.asarray(inputs["field"])
+def _real(inputs, k):
+    """Catalogue ``k``'s real stars as numpy arrays (for the test below, outside any trace)."""
+    m = np.asarray(inputs["mask"][k]) > 0
+    out = {name: np.asarray(inputs[name][k])[m] for name in ("feh", "err", "log_p", "log_q")}
+    out["field"] = np.asarray(inputs["field"][k])
     return out
 
 
-def _profile_mu(data, spread, lo, hi, n_grid=401):
-    """max over mu of ln L at ``spread`` (coarse grid in [lo, hi], then bounded refinement)."""
-    mus = np.linspace(lo, hi, n_grid)
-    ll = np.sum(_per_star(np, data, mus[:, None], spread), axis=1)
-    k = int(np.argmax(ll))
-    step = mus[1] - mus[0]
-    res = optimize.minimize_scalar(
-        lambda m: -np.sum(_per_star(np, data, m, spread)),
-        bounds=(mus[max(k - 1, 0)], mus[min(k + 1, n_grid - 1)]),
-        method="bounded",
-        options={"xatol": 1e-6 * step},
+def _max_likelihood(data, lo, hi, s_max, n_mu=441, n_spread=101):
+    """(ln L at the maximum over mu and spread, the spread there, max ln L at spread 0): the
+    best point of a grid (``n_mu`` x ``n_spread`` over the prior), refined by a bounded search
+    (L-BFGS-B in (mu, spread); bounded Brent in mu at spread 0)."""
+    mus, spreads = np.linspace(lo, hi, n_mu), np.linspace(0.0, s_max, n_spread)
+    ll = np.sum(_per_star(np, data, mus[:, None, None], spreads[None, :, None]), axis=-1)
+    i, j = np.unravel_index(int(np.argmax(ll)), ll.shape)
+    res = optimize.minimize(
+        lambda x: -np.sum(_per_star(np, data, x[0], x[1])),
+        np.array([mus[i], spreads[j]]),
+        method="L-BFGS-B",
+        bounds=[(lo, hi), (0.0, s_max)],
     )
-    return max(-float(res.fun), float(ll[k])), float(res.x)
+    ll_hat, s_hat = (
+        (-float(res.fun), float(res.x[1])) if -res.fun > ll[i, j] else (ll[i, j], spreads[j])
+    )
+    i0 = int(np.argmax(ll[:, 0]))
+    res0 = optimize.minimize_scalar(
+        lambda m: -np.sum(_per_star(np, data, m, 0.0)),
+        bounds=(mus[max(i0 - 1, 0)], mus[min(i0 + 1, n_mu - 1)]),
+        method="bounded",
+        options={"xatol": 1e-9},
+    )
+    ll0 = max(-float(res0.fun), float(ll[i0, 0]))
+    return float(ll_hat), float(s_hat), ll0
 
 
-def spread_test(inputs, n_spread=201):
-    """The likelihood-ratio test of a zero spread (module notes).
+def spread_test(inputs, k=0):
+    """The likelihood-ratio test of a zero spread (module notes) for catalogue ``k``.
 
     Returns a dict: ``two_delta_ln_l``, ``resolved`` (>= :data:`RESOLVED_TWO_DELTA_LN_L`),
-    ``spread_hat_dex`` (the maximum-likelihood spread, on a grid of ``n_spread`` points over the
-    prior refined by a bounded search) and ``p_value`` under the chi-bar-squared null
-    (Self & Liang 1987), and ``rule`` (one line).
+    ``spread_hat_dex`` (the maximum-likelihood spread over the prior's range) and ``p_value``
+    under the chi-bar-squared null (Self & Liang 1987), and ``rule`` (one line).
     """
     from scipy import stats
 
-    data = _real(inputs)
-    lo, hi = (float(v) for v in np.asarray(inputs["mean_prior"]))
-    s_max = float(inputs["spread_max"])
-    ll0, _ = _profile_mu(data, 0.0, lo, hi)
-    grid = np.linspace(0.0, s_max, n_spread)
-    prof = np.array([_profile_mu(data, s, lo, hi)[0] for s in grid])
-    k = int(np.argmax(prof))
-    ll_hat, s_hat = prof[k], grid[k]
-    if k > 0:
-        res = optimize.minimize_scalar(
-            lambda s: -_profile_mu(data, s, lo, hi)[0],
-            bounds=(grid[k - 1], grid[min(k + 1, n_spread - 1)]),
-            method="bounded",
-        )
-        if -res.fun > ll_hat:
-            ll_hat, s_hat = -float(res.fun), float(res.x)
+    data = _real(inputs, k)
+    lo, hi = (float(v) for v in np.asarray(inputs["mean_prior"][k]))
+    ll_hat, s_hat, ll0 = _max_likelihood(data, lo, hi, float(inputs["spread_max"][k]))
     two_dl = max(0.0, 2.0 * (ll_hat - ll0))
     return {
         "two_delta_ln_l": float(two_dl),

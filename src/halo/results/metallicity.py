@@ -11,13 +11,13 @@ from halo.inference.metallicity import (
     FIELD_FEH,
     MEAN_PRIOR_DEX,
     SPREAD_MAX_DEX,
-    feh_inputs,
     make_feh_model,
     spread_test,
+    stack_inputs,
 )
 from halo.inference.sampling import diagnostics, run_nuts
 
-__all__ = ["metallicity_section", "fit_metallicity", "SAMPLER"]
+__all__ = ["metallicity_section", "fit_metallicity", "fit_catalogues", "SAMPLER"]
 
 #: the sampler settings of the metallicity fit (two parameters: short chains suffice; the
 #: diagnostics below decide, and an unconverged fit is flagged)
@@ -31,22 +31,34 @@ _CAUTION = (
 )
 
 
-def fit_metallicity(feh, feh_err, member_prob=None, *, seed=0, fixed_spread=None, **sampler):
-    """NUTS fit of :mod:`halo.inference.metallicity` to the stars with a measured [Fe/H].
+def fit_catalogues(catalogues, *, seed=0, fixed_spread=None, **sampler):
+    """NUTS fit of :mod:`halo.inference.metallicity` to K catalogues at once (independent
+    posteriors in one run, see :func:`halo.inference.metallicity.stack_inputs`).
 
-    ``sampler`` overrides :data:`SAMPLER` (chains, warmup, draws) and other
-    :func:`halo.inference.sampling.run_nuts` options. Returns (samples as numpy arrays by site,
-    :class:`halo.inference.sampling.Diagnostics`, the model inputs, the number of stars).
+    ``catalogues``: ``[(feh, feh_err, member_prob or None), ...]`` per star (NaN [Fe/H]: not
+    measured); ``sampler`` overrides :data:`SAMPLER` (chains, warmup, draws) and other
+    :func:`halo.inference.sampling.run_nuts` options. Returns (samples by site as numpy arrays
+    of shape (draws, K), :class:`halo.inference.sampling.Diagnostics` over all K, the model
+    inputs, the star counts).
     """
     import arviz as az
 
-    inputs, n = feh_inputs(feh, feh_err, member_prob, FIELD_FEH)
+    inputs, counts = stack_inputs(catalogues, FIELD_FEH)
     model = make_feh_model(inputs, fixed_spread=fixed_spread)
     options = {**SAMPLER, "progress": False, "dense_mass": False, **sampler}
     mcmc = run_nuts(model, seed=int(seed), **options)
     samples = {k: np.asarray(v) for k, v in mcmc.get_samples().items()}
     diag = diagnostics(az.from_numpyro(mcmc), model.latent)
-    return samples, diag, inputs, n
+    return samples, diag, inputs, counts
+
+
+def fit_metallicity(feh, feh_err, member_prob=None, *, seed=0, fixed_spread=None, **sampler):
+    """:func:`fit_catalogues` of one catalogue: (samples by site, shape (draws,), diagnostics,
+    inputs, number of stars with [Fe/H])."""
+    samples, diag, inputs, counts = fit_catalogues(
+        [(feh, feh_err, member_prob)], seed=seed, fixed_spread=fixed_spread, **sampler
+    )
+    return {k: v[:, 0] for k, v in samples.items()}, diag, inputs, counts[0]
 
 
 def _reading(out):
@@ -91,14 +103,14 @@ def metallicity_section(stars, member_prob, seed):
     samples, diag, inputs, n = fit_metallicity(feh, stars.feh_err, p, seed=seed)
     test = spread_test(inputs)
     spread = samples["spread_feh"]
-    real = np.asarray(inputs["mask"]) > 0
+    real = np.asarray(inputs["mask"][0]) > 0
     out = {
         "mean_feh": quantiles(samples["mean_feh"]),
         "spread_dex": quantiles(spread),
         "resolved": test["resolved"],
         "spread_upper_95_dex": None if test["resolved"] else float(np.percentile(spread, 95)),
         "n_stars": int(n),
-        "n_members_expected": float(np.exp(np.asarray(inputs["log_p"])[real]).sum()),
+        "n_members_expected": float(np.exp(np.asarray(inputs["log_p"][0])[real]).sum()),
         "converged": bool(diag.converged),
         "diagnostics": diag.as_dict(),
         "problems": diag.problems(),
