@@ -251,6 +251,17 @@ def _check_fraction(value, name):
         fail(f"{name}: expected a number between 0 and 1, got {value!r}")
 
 
+Feh = Annotated[
+    str | None,
+    typer.Option(
+        "--feh", metavar="MEAN,SPREAD", help="draw [Fe/H]: members' mean and spread [dex]"
+    ),
+]
+FehErrors = Annotated[
+    str, typer.Option("--feh-errors", metavar="LO,HI", help="[Fe/H] error range [dex]")
+]
+
+
 def mock_cmd(
     satellite: Satellite,
     out: MockOut,
@@ -267,9 +278,12 @@ def mock_cmd(
     n_foreground: NForeground = 0,
     old_foreground: OldForeground = None,
     anisotropy: Anisotropy = None,
+    feh: Feh = None,
+    feh_errors: FehErrors = "0.1,0.3",
 ):
     """A mock catalogue with a known truth (written beside it as JSON)."""
     from halo.mock.files import write_mock
+    from halo.mock.metallicity import metallicity_options
     from halo.products.console import format_mock_written
 
     positive_int(n_stars, "--n-stars")
@@ -299,6 +313,7 @@ def mock_cmd(
         binary_fraction=binary_fraction,
         n_foreground=n_foreground,
         anisotropy=anisotropy,
+        metallicity=metallicity_options(feh, feh_errors),
     )
     _method_note(method, truth_path)
     typer.echo(format_mock_written(path, truth_path, n_stars, n_foreground))

@@ -87,8 +87,11 @@ def write_mock(
     binary_fraction=0.0,
     n_foreground=0,
     anisotropy=None,
+    metallicity=None,
 ):
     """``halo mock``: draw a mock from a spec at given parameter values and write it.
+
+    ``metallicity``: None or a :class:`halo.mock.metallicity.MockMetallicity` (feh, feh_err).
 
     Returns (catalogue path, truth path). The truth JSON sits beside the catalogue.
     """
@@ -112,6 +115,7 @@ def write_mock(
             binary_fraction=binary_fraction,
             n_foreground=n_foreground,
             anisotropy=anisotropy,
+            metallicity=metallicity,
         )
     except InputError as exc:  # the library's spelling of the option -> the command's
         raise InputError(str(exc).replace("method='gaussian'", "--method gaussian")) from None
