@@ -3,7 +3,8 @@
 The satellite "Synthetica I" and its stars are invented: the catalogue was drawn by halo's own
 mock generator from an equilibrium distribution function (Eddington inversion) with the truth in
 :data:`DEMO_TRUTH` (also stored in the catalogue's metadata): members with 40% binaries, a
-second epoch for about a third of the stars, and field (foreground) stars mixed in. Regenerate
+second epoch for about a third of the stars, field (foreground) stars mixed in, and [Fe/H]
+measurements with a known mean and intrinsic spread (fictional too). Regenerate
 it with
 
     python -m halo.pipeline.demo --regenerate
@@ -41,6 +42,9 @@ DEMO_TRUTH = {
     "repeat_fraction": 0.35,
     "binary_fraction": 0.4,
     "n_foreground": 25,
+    # [Fe/H] per epoch (0.1-0.3 dex errors) for 90% of the stars, from a stream of its own (the
+    # kinematics are those drawn without it); the field's from the mock's broad default
+    "metallicity": {"mean": -2.3, "spread": 0.35, "error_range": (0.1, 0.3), "fraction": 0.9},
 }
 
 #: the demo's models; its sampler settings are the defaults of ``halo fit`` except a shorter
@@ -62,6 +66,7 @@ def demo_catalogue_path():
 def _demo_mock():
     from halo.inputs.satellite import read_satellite
     from halo.mock.catalogue import make_mock
+    from halo.mock.metallicity import MockMetallicity
     from halo.physics.anisotropy import Constant
     from halo.physics.cosmology import rho_crit
     from halo.physics.dark import CoreNFW
@@ -84,6 +89,7 @@ def _demo_mock():
         repeat_fraction=t["repeat_fraction"],
         binary_fraction=t["binary_fraction"],
         n_foreground=t["n_foreground"],
+        metallicity=MockMetallicity(**t["metallicity"]),
     )
 
 
