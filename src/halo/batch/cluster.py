@@ -15,7 +15,7 @@ import os
 
 from halo.core.errors import InputError
 
-__all__ = ["WORKER_ENV", "default_workers", "batch_client", "LOOPBACK"]
+__all__ = ["WORKER_ENV", "default_workers", "batch_client", "local_cluster", "LOOPBACK"]
 
 LOOPBACK = "127.0.0.1"
 
@@ -48,7 +48,8 @@ def _worker_env():
     return env
 
 
-def _local_cluster(workers):
+def local_cluster(workers):
+    """A LocalCluster of ``workers`` single-threaded processes on loopback (see the module)."""
     from distributed import LocalCluster
 
     return LocalCluster(
@@ -86,5 +87,5 @@ def batch_client(scheduler=None, workers=None):
     if isinstance(n, bool) or not isinstance(n, int) or n < 1:
         raise InputError(f"--workers: expected a positive number of workers, got {n!r}")
     logging.getLogger("distributed").setLevel(logging.CRITICAL)
-    with _local_cluster(n) as cluster, Client(cluster) as client:
+    with local_cluster(n) as cluster, Client(cluster) as client:
         yield client
