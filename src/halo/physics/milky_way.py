@@ -30,6 +30,7 @@ parameters (:data:`GALCEN_FRAME`) are stated in every output.
 """
 
 import dataclasses
+import functools
 import math
 
 import jax
@@ -49,6 +50,7 @@ __all__ = [
     "circular_velocity",
     "enclosed_mass",
     "tidal_terms",
+    "tidal_field",
     "mean_density",
     "galactocentric_phase_space",
 ]
@@ -76,6 +78,9 @@ class PowerCutoffBulge:
         full = math.gamma(a) * gammainc(a, (r / self.r_c) ** 2)
         return 2.0 * math.pi * self.amp * self.r_c ** (3.0 - self.alpha) * full
 
+    def vc2_plane(self, big_r):
+        return G * self.mass_r(big_r) / big_r
+
     def potential(self, x):
         r = _radius(x)
         a = 1.0 - 0.5 * self.alpha
@@ -92,6 +97,10 @@ class MiyamotoNagaiDisc:
     a: float
     b: float
 
+    def vc2_plane(self, big_r):
+        """R dPhi/dR at z = 0: G M R^2 / (R^2 + (a + b)^2)^(3/2)."""
+        return G * self.mass * big_r**2 / (big_r**2 + (self.a + self.b) ** 2) ** 1.5
+
     def potential(self, x):
         big_r2 = x[..., 0] ** 2 + x[..., 1] ** 2
         zb = jnp.sqrt(x[..., 2] ** 2 + self.b**2)
@@ -104,6 +113,12 @@ class NFWHalo:
 
     rho_s: float
     r_s: float
+
+    def vc2_plane(self, big_r):
+        """G M(<R) / R, M(<r) = 4 pi rho_s r_s^3 [ln(1 + x) - x / (1 + x)]."""
+        x = big_r / self.r_s
+        mass = 4.0 * math.pi * self.rho_s * self.r_s**3 * (math.log1p(x) - x / (1.0 + x))
+        return G * mass / big_r
 
     def potential(self, x):
         r = _radius(x)
@@ -135,12 +150,14 @@ def _grad(gal, x):
     return jax.grad(lambda y: gal.potential(y))(x)
 
 
+@jax.jit
 def acceleration(gal, x):
     """-grad Phi [(km/s)^2 / kpc] at the positions x [..., 3] (kpc)."""
     flat = jnp.reshape(x, (-1, 3))
     return -jnp.reshape(jax.vmap(lambda y: _grad(gal, y))(flat), jnp.shape(x))
 
 
+@jax.jit
 def circular_velocity(gal, big_r):
     """v_c(R) = sqrt(R dPhi/dR) [km/s] in the plane z = 0 at the radii ``big_r`` [kpc]."""
     big_r = jnp.asarray(big_r, float)
@@ -157,33 +174,47 @@ def _radial_terms(gal, x):
     return r, jnp.dot(u, g), jnp.dot(u, h @ u)
 
 
+@jax.jit
+def tidal_field(gal, x):
+    """Everything the tides need at positions x [..., 3] (kpc), in one compiled call: a dict of
+    ``omega2`` Omega^2 = (r_hat . grad Phi) / r and ``d2phi`` d2Phi/dr2 = r_hat . H . r_hat
+    [(km/s / kpc)^2], ``enclosed_mass`` r^2 (r_hat . grad Phi) / G [Msun] (spherical equivalent)
+    and ``mean_density`` 3 M(<r) / (4 pi r^3) [Msun kpc^-3]."""
+    flat = jnp.reshape(jnp.asarray(x, float), (-1, 3))
+    r, dphi, d2 = jax.vmap(lambda y: _radial_terms(gal, y))(flat)
+    shape = jnp.shape(x)[:-1]
+    mass = r**2 * dphi / G
+    out = {
+        "omega2": dphi / r,
+        "d2phi": d2,
+        "enclosed_mass": mass,
+        "mean_density": 3.0 * mass / (4.0 * math.pi * r**3),
+    }
+    return {k: jnp.reshape(v, shape) for k, v in out.items()}
+
+
 def enclosed_mass(gal, x):
     """Spherical-equivalent enclosed mass r^2 (r_hat . grad Phi) / G [Msun] at x [..., 3] (kpc)."""
-    flat = jnp.reshape(jnp.asarray(x, float), (-1, 3))
-    r, dphi, _ = jax.vmap(lambda y: _radial_terms(gal, y))(flat)
-    return jnp.reshape(r**2 * dphi / G, jnp.shape(x)[:-1])
+    return tidal_field(gal, x)["enclosed_mass"]
 
 
 def tidal_terms(gal, x):
     """(Omega^2, d2Phi/dr2) [(km/s / kpc)^2] at positions x [..., 3]: Omega^2 = (dPhi/dr) / r
     along r_hat and d2Phi/dr2 = r_hat . H . r_hat (the tidal tensor's radial entry)."""
-    flat = jnp.reshape(jnp.asarray(x, float), (-1, 3))
-    r, dphi, d2 = jax.vmap(lambda y: _radial_terms(gal, y))(flat)
-    shape = jnp.shape(x)[:-1]
-    return jnp.reshape(dphi / r, shape), jnp.reshape(d2, shape)
+    f = tidal_field(gal, x)
+    return f["omega2"], f["d2phi"]
 
 
 def mean_density(gal, x):
     """Mean density inside the sphere through x, 3 M(<r) / (4 pi r^3) [Msun kpc^-3]."""
-    r = _radius(jnp.asarray(x, float))
-    return 3.0 * enclosed_mass(gal, x) / (4.0 * math.pi * r**3)
+    return tidal_field(gal, x)["mean_density"]
 
 
 def _normalised(gal_unit, fractions, r0, v0):
     """Scale each unit-amplitude component so that its v_c^2(R0) is fraction * v0^2."""
     comps = []
     for comp, frac in zip(gal_unit, fractions, strict=True):
-        vc2 = circular_velocity(Galaxy((comp,)), r0) ** 2
+        vc2 = float(comp.vc2_plane(r0))  # closed form (tests/test_milky_way.py: = v_c^2 by grad)
         scale = frac * v0**2 / vc2
         field = {"PowerCutoffBulge": "amp", "MiyamotoNagaiDisc": "mass", "NFWHalo": "rho_s"}
         key = field[type(comp).__name__]
@@ -191,6 +222,7 @@ def _normalised(gal_unit, fractions, r0, v0):
     return tuple(comps)
 
 
+@functools.cache
 def _bovy2015():
     """Bovy (2015, ApJS 216, 29), section 3.5 and table 1 (see the module docstring)."""
     unit = (

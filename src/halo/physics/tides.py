@@ -24,10 +24,11 @@ import jax.numpy as jnp
 from halo.core.constants import G
 from halo.core.numerics import bisect
 
-__all__ = ["jacobi_radius_point", "jacobi_radius", "truncated", "tidal_density"]
+__all__ = ["R_J_FLOOR", "jacobi_radius_point", "jacobi_radius", "truncated", "tidal_density"]
 
 #: ln r bracket of the self-consistent solution [ln kpc]: 1e-7 kpc to 1e4 kpc
-_LN_LO, _LN_HI = jnp.log(1e-7), jnp.log(1e4)
+R_J_FLOOR = 1e-7
+_LN_LO, _LN_HI = jnp.log(R_J_FLOOR), jnp.log(1e4)
 
 
 def jacobi_radius_point(mass, denominator):
@@ -47,7 +48,9 @@ def jacobi_radius(model, denominator, n_bisect=60):
     g decreases wherever M grows slower than r^3 (any density that does not grow outwards), so
     the root is unique; ``n_bisect`` bisections of ln r in [ln 1e-7, ln 1e4] kpc locate it to a
     relative width of 25.3 / 2^n_bisect (2e-17 for 60, below double precision). NaN when the
-    denominator is not positive or no root is bracketed.
+    denominator is not positive. When even the centre is not bound (the satellite's central
+    density below :func:`tidal_density`: g < 0 at the lowest radius) the result is the bracket's
+    floor, 1e-7 kpc (:data:`R_J_FLOOR`): no region of the satellite lies inside a Jacobi surface.
     """
     den = jnp.asarray(denominator, float)
     ok = den > 0
@@ -57,8 +60,8 @@ def jacobi_radius(model, denominator, n_bisect=60):
         return jnp.log(G * model.mass(jnp.exp(ln_r))) - ln_den - 3.0 * ln_r
 
     lo, hi = bisect(lambda mid: ~(g(mid) > 0.0), _LN_LO, _LN_HI, n_bisect)
-    bracketed = (g(_LN_LO) > 0.0) & (g(_LN_HI) < 0.0)
-    return jnp.where(ok & bracketed, jnp.exp(0.5 * (lo + hi)), jnp.nan)
+    r = jnp.where(g(_LN_HI) < 0.0, jnp.exp(0.5 * (lo + hi)), jnp.nan)
+    return jnp.where(ok, jnp.where(g(_LN_LO) > 0.0, r, R_J_FLOOR), jnp.nan)
 
 
 def truncated(dark, r_j):
