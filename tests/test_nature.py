@@ -17,6 +17,7 @@ import pytest
 from fit_setup import CLUSTER, NO_EXTRAS, cluster_mock, fit_command, tiny_chains, write_satellite
 
 from halo.cli.app import main
+from halo.core.constants import G
 from halo.core.vocabulary import STARS_ONLY
 from halo.inputs.satellite import parse_satellite
 from halo.inputs.spec import load_spec
@@ -86,6 +87,10 @@ def test_twenty_stars_at_12_kpc_would_not_survive():
     assert mw["model"] == "bovy2015" and mw["galactocentric_distance_kpc"] == pytest.approx(12.0)
     # Bovy 2015: M(<12 kpc) ~ v_c^2 R / G with v_c ~ 210 km/s (galpy, tests/test_milky_way.py)
     assert 1.0e11 < mw["enclosed_mass_msun"] < 1.3e11
+    # the flat 220 km/s model beside it: M = v_c^2 R / G = 1.35e11 Msun, r_J within a few per cent
+    iso = mw["other_models"]["isothermal220"]
+    assert iso["enclosed_mass_msun"] == pytest.approx(220.0**2 * 12.0 / G, rel=1e-9)
+    assert 0.9 < iso["jacobi_radius_ratio"] < 1.1
     assert "provisional" in nat["caution"] and "would not survive" in s["reading"]
 
 

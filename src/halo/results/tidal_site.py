@@ -57,6 +57,23 @@ def _orbits(satellite, gal, dist, v_sys, rng, progress):
     return pos, np.asarray(x_peri), np.asarray(r_peri), np.asarray(r_apo)
 
 
+def _other_models(gal, x_judge, denominator):
+    """The other Milky Way models at the same judging points: their enclosed mass and
+    ``jacobi_radius_ratio``, r_J in that model over r_J in this one for a fixed satellite mass,
+    (denominator / theirs)^(1/3) (a measure of the Milky Way model's systematic error)."""
+    out = {}
+    for name in MILKY_WAY_MODELS:
+        if name == gal.name:
+            continue
+        f = tidal_field(milky_way(name), x_judge)
+        den = np.asarray(f["omega2"] - f["d2phi"])
+        out[name] = {
+            "enclosed_mass_msun": float(np.median(np.asarray(f["enclosed_mass"]))),
+            "jacobi_radius_ratio": float(np.median(np.cbrt(denominator / den))),
+        }
+    return out
+
+
 def tidal_site(satellite, samples, rng, *, model=None, n_site=N_SITE, progress=None):
     """(per-draw arrays, summary entry ``nature.tides.milky_way``) of the tidal field.
 
@@ -119,6 +136,10 @@ def tidal_site(satellite, samples, rng, *, model=None, n_site=N_SITE, progress=N
             else "astropy Galactocentric frame from ra, dec and the distance draws"
         ),
         "frame": dict(GALCEN_FRAME),
+        "other_models": _other_models(gal, x_judge, arrays["denominator"]),
+        "pairing": (
+            "each model's posterior draws are paired at random with these draws of the tidal field"
+        ),
         "enclosed_mass_uncertainty": "none: the Milky Way model gives no uncertainty",
     }
     return arrays, entry
