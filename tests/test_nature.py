@@ -154,3 +154,23 @@ def test_halo_fit_writes_the_nature_section(tmp_path):
     # 2e4 Msun in ~8 pc at 20 kpc (Baumgardt & Makino 2003: tens of Gyr): survives
     assert s["p_survives_age"] > 0.9
     assert "metallicity" not in nat  # no [Fe/H] in the catalogue
+
+
+@pytest.mark.parametrize(
+    "extra, key",
+    [
+        ({"pm_ra_cosdec_masyr": 0.3}, "pm_ra_cosdec_masyr' needs 'pm_dec_masyr"),
+        ({"pm_dec_masyr": 0.3}, "pm_dec_masyr' needs 'pm_ra_cosdec_masyr"),
+        ({"pm_ra_cosdec_err_masyr": 0.1}, "pm_ra_cosdec_err_masyr' needs"),
+        ({"age_err_gyr": 1.0}, "age_err_gyr' needs 'age_gyr"),
+        ({"pm_ra_cosdec_masyr": 300.0, "pm_dec_masyr": 0.0}, "pm_ra_cosdec_masyr' must be between"),
+        ({"age_gyr": 10.0, "age_err_gyr": -1.0}, "age_err_gyr' must be non-negative"),
+    ],
+)
+def test_satellite_keys_of_the_orbit_are_checked(tmp_path, capsys, extra, key):
+    sat_file = write_satellite(tmp_path / "sat.toml", {**CLUSTER, **extra})
+    cat = tmp_path / "cat.ecsv"
+    cat.write_text("# %ECSV 1.0\n# ---\n# datatype: []\n")
+    assert main(fit_command(cat, sat_file, tmp_path / "run")) == 2
+    err = capsys.readouterr().err
+    assert key in err and "sat.toml" in err and "Traceback" not in err
