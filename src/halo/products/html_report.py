@@ -22,11 +22,13 @@ from pathlib import Path
 
 from halo.core.fileio import atomic_path
 from halo.products.report_cells import esc
+from halo.products.report_comparison import comparison_section
 from halo.products.report_figures import caveats, figures
-from halo.products.report_models import estimators, model_section
+from halo.products.report_headline import headline_table
+from halo.products.report_models import model_section
 from halo.products.report_run import diagnostics, inputs, notes
 from halo.products.report_sources import load_summary
-from halo.products.report_verdict import banners, verdicts
+from halo.products.report_verdict import convergence_banner, dispersion_banner, verdict_block
 
 __all__ = ["write_html_report"]
 
@@ -48,25 +50,30 @@ def _when(created):
     return esc(t.strftime("%Y-%m-%d %H:%M:%S"))
 
 
+def _sections(summary, run_dir):
+    """(id, title, HTML) of the sections in reading order: verdict, headline numbers, figures,
+    comparison and priors, diagnostics, inputs and hashes, then notes and caveats."""
+    models = "".join(model_section(n, m, summary) for n, m in summary["models"].items())
+    return [
+        ("verdict", "Verdict", verdict_block(summary) + dispersion_banner(summary)),
+        ("models", "Headline numbers", headline_table(summary) + models),
+        ("figures", "Figures", figures(summary, run_dir)),
+        ("comparison", "Comparison with stars alone, and the priors", comparison_section(summary)),
+        ("diagnostics", "Convergence diagnostics", diagnostics(summary)),
+        ("inputs", "Inputs and hashes", inputs(summary, run_dir)),
+        ("notes", "Notes and warnings", notes(summary)),
+        ("caveats", "Caveats", caveats()),
+    ]
+
+
 def _render(summary, run_dir):
     name = summary["satellite"]["name"]
     dark = [n for n, m in summary["models"].items() if "vs_stars_only" in m]
-    sections = [
-        ("verdict", "Verdict: dark halo or stars alone", verdicts(summary)),
-        (
-            "models",
-            "Models",
-            "".join(model_section(n, m, summary) for n, m in summary["models"].items()),
-        ),
-        ("estimators", "Closed-form estimators", estimators(summary)),
-        ("diagnostics", "Convergence diagnostics", diagnostics(summary)),
-        ("inputs", "Inputs", inputs(summary, run_dir)),
-        ("notes", "Notes and warnings", notes(summary)),
-        ("figures", "Figures", figures(summary, run_dir)),
-        ("caveats", "Caveats", caveats()),
-    ]
+    sections = _sections(summary, run_dir)
     nav = "".join(f'<a href="#sec-{k}">{t}</a>' for k, t, _ in sections)
     body = "".join(f'<section id="sec-{k}"><h2>{t}</h2>{h}</section>' for k, t, h in sections)
+    first, rest = body.split("</section>", 1)
+    body = f"{first}</section><nav>{nav}</nav>{rest}"
     written = datetime.datetime.now(datetime.UTC).strftime("%Y-%m-%d %H:%M:%S UTC")
     sub = (
         f"Run of {_when(summary['created'])} &middot; halo {esc(summary.get('version'))} &middot; "
@@ -82,7 +89,7 @@ def _render(summary, run_dir):
         f"<style>\n{_css()}</style></head>"
         f'<body><main><header><h1 id="title">{esc(name)} <span class="kind">fit report</span></h1>'
         f'<p class="sub">{sub}</p></header>'
-        f"{banners(summary)}<nav>{nav}</nav>{body}"
+        f"{convergence_banner(summary)}{body}"
         f"<footer>Written by halo {esc(summary.get('version'))} from "
         "<code>summary.json</code>, <code>members.ecsv</code> and the figures of the run "
         "folder. Self-contained: no scripts, no external resources.</footer>"

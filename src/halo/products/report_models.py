@@ -17,6 +17,7 @@ from halo.products.report_cells import (
     sig_figs,
     slugify,
 )
+from halo.products.report_verdict import nc_mark
 
 __all__ = ["model_section", "estimators"]
 
@@ -145,11 +146,7 @@ def _parameters_table(slug, params):
 def model_section(name, m, summary):
     """One model's section: headline table, LOO notes and the folded parameter table."""
     slug = slugify(name)
-    status = (
-        '<span class="ok">converged</span>'
-        if m["converged"]
-        else '<span class="bad">NOT CONVERGED</span>'
-    )
+    status = '<span class="ok">converged</span>' if m["converged"] else nc_mark(m).strip()
     rows = _derived_rows(slug, m["derived"]) + _fit_rows(slug, name, m, summary)
     parts = [
         f'<section id="model-{slug}"><h3>Model {esc(name)} &mdash; {status}</h3>',

@@ -53,7 +53,7 @@ def diagnostics(summary):
         def cell(text, bad):
             return f'<td class="num{" bad" if bad else ""}">{text}</td>'
 
-        status = "converged" if m["converged"] else "NOT CONVERGED"
+        status = "converged" if m["converged"] else "&#9888; not converged"
         probs = "; ".join(esc(p) for p in m.get("problems") or []) or "&ndash;"
         rows.append(
             f'<tr id="diag-{slugify(name)}"><th scope="row">{esc(name)}</th>'
@@ -162,9 +162,11 @@ def inputs(summary, run_dir):
 
 
 def notes(summary):
+    """The run's warnings and notes; a model's non-convergence is left to the banner at the top
+    (said once)."""
     parts = []
     for key, title in (("warnings", "Warnings"), ("notes", "Notes")):
-        items = summary.get(key) or []
+        items = [x for x in summary.get(key) or [] if "NOT CONVERGED" not in str(x)]
         if items:
             lis = "".join(f"<li>{esc(x)}</li>" for x in items)
             parts.append(f'<h3>{title}</h3><ul class="plain" id="{key}">{lis}</ul>')

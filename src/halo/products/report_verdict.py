@@ -1,34 +1,70 @@
-"""The top of the fit report: the loud banners (a model not converged, a dispersion not
-resolved, with its upper limits) and the verdict table, dark halo against stars alone."""
+"""The top of the fit report: one loud banner when a model did not converge, the verdict block
+(summary.json ``verdict``) with the nature of the satellite beside it, the banner of an
+unresolved dispersion with its upper limits, and the comparison table, dark halo against stars
+alone, with its convergence state."""
 
+from halo.core.vocabulary import STARS_ONLY
 from halo.products.report_cells import D_UNIT, J_UNIT, MSUN, RHALF, esc, fixed, sig_figs, slugify
+from halo.products.verdict_text import nature_items
 
-__all__ = ["banners", "verdicts"]
+__all__ = [
+    "nc_mark",
+    "banners",
+    "convergence_banner",
+    "dispersion_banner",
+    "verdict_block",
+    "verdicts",
+]
 
 
-def banners(summary):
-    out = []
+def nc_mark(m):
+    """The mark beside a number of a model that did not converge ('' when it converged)."""
+    if m.get("converged", True):
+        return ""
+    return ' <span class="nc-mark" title="this model did not converge">&#9888; not converged</span>'
+
+
+def convergence_banner(summary):
+    """One banner for every model that did not converge ('' when all did)."""
+    items = []
     for name, m in summary["models"].items():
         if m["converged"]:
             continue
         probs = "".join(f"<li>{esc(p)}</li>" for p in m.get("problems") or [])
-        out.append(
-            f'<div class="banner" id="banner-nc-{slugify(name)}" role="alert">'
-            f'<strong class="head">Model {esc(name)} did NOT CONVERGE</strong>'
-            "<p>Its numbers, its evidence and every comparison that involves it are unreliable. "
-            "Rerun with more warmup, draws or chains before quoting anything from it.</p>"
-            f'<ul class="plain">{probs}</ul></div>'
+        items.append(
+            f'<li id="banner-nc-{slugify(name)}">Model {esc(name)} did NOT CONVERGE'
+            f'<ul class="plain">{probs}</ul></li>'
         )
+    if not items:
+        return ""
+    return (
+        '<div class="banner" id="banner-nc" role="alert">'
+        '<strong class="head">NOT CONVERGED: these numbers are unreliable</strong>'
+        f'<ul class="plain">{"".join(items)}</ul>'
+        "<p>Its numbers, its evidence and every comparison that involves it are unreliable "
+        "(marked &#9888; below). Rerun with more warmup, draws or chains before quoting "
+        "anything from it.</p></div>"
+    )
+
+
+def dispersion_banner(summary):
+    """The banner of an unresolved dispersion, with the upper limits ('' when resolved)."""
     disp = summary.get("dispersion")
-    if isinstance(disp, dict) and disp.get("resolved") is False:
-        out.append(
-            '<div class="banner" id="banner-dispersion" role="alert">'
-            '<strong class="head">The velocity dispersion is NOT RESOLVED</strong>'
-            f"<p>{esc(disp.get('message'))}</p>"
-            "<p>Quote the 95% upper limits below, not the medians.</p>"
-            f"{_upper_limits_table(summary)}</div>"
-        )
-    return "".join(out)
+    if not (isinstance(disp, dict) and disp.get("resolved") is False):
+        return ""
+    return (
+        '<div class="banner" id="banner-dispersion" role="alert">'
+        '<strong class="head">The velocity dispersion is NOT RESOLVED</strong>'
+        f"<p>{esc(disp.get('message'))}</p>"
+        "<p>Quote the 95% upper limits below, not the medians.</p>"
+        f"{_upper_limits_table(summary)}</div>"
+    )
+
+
+def banners(summary):
+    """Both banners (the page shows them apart: convergence at the top, dispersion under the
+    verdict)."""
+    return convergence_banner(summary) + dispersion_banner(summary)
 
 
 def _upper_limits_table(summary):
@@ -59,6 +95,45 @@ def _upper_limits_table(summary):
     return f'<table class="limits">{"".join(rows)}</table>'
 
 
+def _nature_html(summary):
+    items = nature_items(summary)
+    if not items:
+        return ""
+    rows = "".join(
+        f'<tr id="nature-{slugify(label.replace(": ", "-"))}"><th scope="row">{esc(label)}</th>'
+        f"<td>{esc(words)}</td></tr>"
+        for label, words in items
+    )
+    return f'<table id="nature"><caption>Nature of the satellite</caption>{rows}</table>'
+
+
+def verdict_block(summary):
+    """The verdict box: summary.json ``verdict.text``, line by line, then the nature."""
+    v = summary.get("verdict")
+    if not (isinstance(v, dict) and v.get("text")):
+        return '<div class="verdict-box" id="verdict-block"><p>No verdict in this run.</p></div>'
+    first, *rest = v["text"].splitlines()
+    cls = "ok" if v.get("converged") else "bad"
+    lines = "".join(
+        f'<li class="{"reading" if line.startswith("reading:") else ""}">{esc(line)}</li>'
+        for line in rest
+    )
+    return (
+        f'<div class="verdict-box" id="verdict-block"><p class="verdict-head {cls}">'
+        f'{esc(first)}</p><ul class="plain">{lines}</ul>{_nature_html(summary)}</div>'
+    )
+
+
+def _caution(name, m, models):
+    bad = [] if m["converged"] else [name]
+    ref = models.get(STARS_ONLY)
+    if ref is not None and not ref.get("converged", True):
+        bad.append(STARS_ONLY)
+    if not bad:
+        return f' <span class="ok">({esc(name)} and stars-only converged)</span>'
+    return f' <span class="bad">({"; ".join(f"{esc(b)} not converged" for b in bad)})</span>'
+
+
 def verdicts(summary):
     models = summary["models"]
     rows = []
@@ -66,20 +141,13 @@ def verdicts(summary):
         c = m.get("vs_stars_only")
         if not isinstance(c, dict):
             continue
-        caution = []
-        if not m["converged"]:
-            caution.append(f"{esc(name)} not converged")
-        ref = next((v for k, v in models.items() if "vs_stars_only" not in v), None)
-        if ref is not None and not ref.get("converged", True):
-            caution.append("stars-only not converged")
-        warn = f' <span class="bad">({"; ".join(caution)})</span>' if caution else ""
         rows.append(
             f'<tr id="verdict-{slugify(name)}"><th scope="row">{esc(name)}</th>'
             f'<td class="num">{fixed(c.get("ln_bayes_factor"))} &plusmn; '
             f"{fixed(c.get('ln_bayes_factor_err'))}</td>"
             f'<td class="num">{fixed(c.get("delta_elpd"), 1)} &plusmn; '
             f"{fixed(c.get('delta_elpd_se'), 1)}</td>"
-            f'<td class="verdict">{esc(c.get("verdict"))}{warn}</td></tr>'
+            f'<td class="verdict">{esc(c.get("verdict"))}{_caution(name, m, models)}</td></tr>'
         )
     if not rows:
         return (

@@ -3,7 +3,9 @@
 from astropy.table import MaskedColumn, Table
 
 from halo.core.fileio import write_ecsv
-from halo.core.vocabulary import ESTIMATOR_NAMES, QUANTILE_KEYS, estimator_key
+from halo.core.vocabulary import ESTIMATOR_NAMES, QUANTILE_KEYS, STARS_ONLY, estimator_key
+from halo.products.units import UNIT_NOTE, quantity_unit
+from halo.products.verdict_text import verdict_lines
 
 __all__ = ["summary_rows", "write_summary_table", "format_summary"]
 
@@ -41,6 +43,7 @@ def write_summary_table(summary, path):
     t = Table()
     t["model"] = [r[0] for r in rows]
     t["quantity"] = [r[1] for r in rows]
+    t["unit"] = [quantity_unit(r[0], r[1], summary) or "" for r in rows]
     for q in QUANTILE_KEYS:
         t[q] = [float("nan") if r[2] is None or r[2].get(q) is None else r[2][q] for r in rows]
     conv = {m: v["converged"] for m, v in summary["models"].items()}
@@ -48,6 +51,7 @@ def write_summary_table(summary, path):
     t["converged"] = MaskedColumn(
         [bool(conv.get(r[0], False)) for r in rows], mask=[r[0] not in conv for r in rows]
     )
+    t.meta["unit_note"] = UNIT_NOTE
     t.meta["version"] = summary["version"]
     t.meta["created"] = summary["created"]
     t.meta["catalogue_sha256"] = summary["catalogue"]["sha256"]
@@ -81,7 +85,7 @@ def _run_lines(summary):
         # an unresolved dispersion (maximum at sigma = 0) has no symmetric error
         err = "(error undefined: unresolved)" if err is None else f"+- {err:.2f}"
         lines.append(
-            f"global dispersion {est['sigma_los_kms']:.2f} {err} km/s"
+            f"closed-form global dispersion {est['sigma_los_kms']:.2f} {err} km/s"
             f" ({est.get('n_stars_used', cat['n_stars'])} stars: {est.get('selection', 'all')});"
             f" estimators: Walker09 {_g(est.get('walker2009_msun'))}, Wolf10 "
             f"{_g(est.get('wolf2010_msun'))}, Errani18 {_g(est.get('errani2018_msun'))} Msun"
@@ -121,7 +125,16 @@ def _n(x, fmt=".2f"):
     return "undefined" if x is None else format(x, fmt)
 
 
-def _comparison_lines(m, ul):
+def _state(m, summary):
+    """The convergence state beside a graded word: of the model and of stars-only."""
+    ref = summary["models"].get(STARS_ONLY, {})
+    bad = [n for n, x in ((None, m), (STARS_ONLY, ref)) if not x.get("converged", True)]
+    if not bad:
+        return "[both converged]"
+    return "[NOT CONVERGED: " + ", ".join("this model" if n is None else n for n in bad) + "]"
+
+
+def _comparison_lines(m, ul, summary):
     """A model's upper limits, evidence, comparison with stars only, LOO warning and problems."""
     lines = []
     if ul:
@@ -139,7 +152,7 @@ def _comparison_lines(m, ul):
         lines.append(
             f"  vs stars-only: ln B = {_n(c.get('ln_bayes_factor'))} +- "
             f"{_n(c.get('ln_bayes_factor_err'))}, delta ELPD = {_n(c.get('delta_elpd'), '.1f')} "
-            f"+- {_n(c.get('delta_elpd_se'), '.1f')}: {c.get('verdict', '')}"
+            f"+- {_n(c.get('delta_elpd_se'), '.1f')}: {c.get('verdict', '')} {_state(m, summary)}"
         )
     loo = m["loo"]
     if loo.get("n_pareto_k_above_threshold") or loo.get("pareto_k_max") is None:
@@ -155,13 +168,15 @@ def _comparison_lines(m, ul):
 
 def format_summary(summary, out_dir=None):
     """The closing text of ``halo fit``: per model headline numbers, comparison and warnings."""
-    lines = _run_lines(summary)
+    lines = verdict_lines(summary)
+    lines += [""] if lines else []
+    lines += _run_lines(summary)
     for name, m in summary["models"].items():
         flag = "" if m["converged"] else "   *** NOT CONVERGED ***"
         lines.append("")
         lines.append(f"model {name}{flag}")
         lines += _headline_lines(m)
-        lines += _comparison_lines(m, (summary.get("upper_limits") or {}).get(name))
+        lines += _comparison_lines(m, (summary.get("upper_limits") or {}).get(name), summary)
     lines.append("")
     lines.append(
         "Bayes factors depend on the prior ranges (e.g. of M200): read them with the priors "

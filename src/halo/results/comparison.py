@@ -2,22 +2,31 @@
 
 import numpy as np
 
-__all__ = ["verdict", "compare"]
+__all__ = ["grade", "verdict", "compare"]
 
 
-def verdict(ln_bf, ln_bf_err=0.0):
-    """Plain words for a ln Bayes factor (dark model over stars only).
+def grade(ln_bf):
+    """(grade, side) of a ln Bayes factor (dark model over stars only).
 
     Scale of Kass & Raftery (1995, JASA 90, 773, sec. 3.2) on 2 ln B: < 2 not worth more than a
-    bare mention, 2-6 positive, 6-10 strong, > 10 very strong.
+    bare mention (grade "none", side None), 2-6 "positive", 6-10 "strong", > 10 "very strong";
+    side "dark matter" when ln B > 0, else "stars alone".
     """
     two = 2.0 * abs(ln_bf)
     if two < 2:
+        return "none", None
+    words = "positive" if two < 6 else "strong" if two < 10 else "very strong"
+    return words, "dark matter" if ln_bf > 0 else "stars alone"
+
+
+def verdict(ln_bf, ln_bf_err=0.0):
+    """Plain words for a ln Bayes factor (dark model over stars only), on the scale of
+    :func:`grade`; "(within the evidence uncertainty)" when |ln B| < 3 x its error."""
+    words, side = grade(ln_bf)
+    if side is None:
         words = "no preference worth more than a bare mention"
     else:
-        grade = "positive" if two < 6 else "strong" if two < 10 else "very strong"
-        side = "dark matter" if ln_bf > 0 else "stars alone"
-        words = f"{grade} evidence for {side}"
+        words = f"{words} evidence for {side}"
     if ln_bf_err and abs(ln_bf) < 3 * ln_bf_err:
         words += " (within the evidence uncertainty)"
     return words

@@ -101,8 +101,40 @@ _MEMBERS_NOTE = (
     f"{LIKELY_BINARY_BAYES_FACTOR:g}: evidence of variability, not the prior); "
     "radius_pc: circularised, at the "
     "satellite file's distance; v_mean_kms: inverse-variance weighted mean over the epochs; "
-    "binary_mc_ess: effective number of Monte Carlo orbits behind the multi-epoch binary term"
+    "binary_mc_ess: effective number of Monte Carlo orbits behind the multi-epoch binary term; "
+    "ra, dec: ICRS position of the star's first row; xi, eta: offsets east and north of the "
+    "satellite centre on the tangent plane of the zenithal equidistant projection (FITS ARC: "
+    "their length is the great-circle separation; the radii above come from them); "
+    "epoch_chi2: sum of the epochs' squared deviations "
+    "from v_mean_kms over their variances, with epoch_chi2_dof = n_epochs - 1 degrees of freedom "
+    "and epoch_chi2_p = P(chi2 > epoch_chi2) (scipy.stats.chi2.sf; small values flag a velocity "
+    "change, NaN for one epoch)"
 )
+
+
+def _star_columns(t, stars, satellite):
+    """Positions, radii, mean velocities and the epochs' chi2 of the stars, with their units."""
+    import astropy.units as u
+
+    rad = np.asarray(stars.radius_deg)
+    cols = (
+        ("ra", stars.ra, u.deg),
+        ("dec", stars.dec, u.deg),
+        ("xi", stars.xi_deg, u.deg),
+        ("eta", stars.eta_deg, u.deg),
+        ("radius_deg", rad, u.deg),
+        ("radius_pc", np.tan(np.radians(rad)) * satellite.distance_kpc * 1e3, u.pc),
+        ("n_epochs", stars.n_epochs, None),
+        ("v_mean_kms", stars.v, u.km / u.s),
+        ("v_mean_err_kms", stars.v_err, u.km / u.s),
+        ("epoch_chi2", stars.chi2, None),
+        ("epoch_chi2_dof", stars.chi2_dof, None),
+        ("epoch_chi2_p", stars.p_var, None),
+    )
+    for name, val, unit in cols:
+        t[name] = np.asarray(val)
+        if unit is not None:
+            t[name].unit = unit
 
 
 def members_table(stars, results, names, satellite):
@@ -125,11 +157,7 @@ def members_table(stars, results, names, satellite):
     t["binary_prob"] = np.full(stars.n_stars, np.nan) if bp is None else bp
     bf = binary_bayes_factor(res)
     t["binary_bayes_factor"] = np.full(stars.n_stars, np.nan) if bf is None else bf
-    t["radius_deg"] = np.asarray(stars.radius_deg)
-    t["radius_pc"] = np.tan(np.radians(np.asarray(stars.radius_deg))) * satellite.distance_kpc * 1e3
-    t["n_epochs"] = np.asarray(stars.n_epochs)
-    t["v_mean_kms"] = np.asarray(stars.v)
-    t["v_mean_err_kms"] = np.asarray(stars.v_err)
+    _star_columns(t, stars, satellite)
     if res.get("epochs") is not None:
         t["binary_mc_ess"] = np.asarray(res["epochs"].ess)
     for n in names:

@@ -16,6 +16,7 @@ from halo.results.derived import PROFILE_RADII_PC
 from halo.results.dispersion import resolution, upper_limits
 from halo.results.estimators import estimators
 from halo.results.members import binary_bayes_factor
+from halo.results.verdict import build_verdict, dispersion_steps
 
 __all__ = ["model_summary", "build_summary", "clean"]
 
@@ -52,6 +53,10 @@ def _derived(res):
         "m_re_msun": quantiles(der["m_re_msun"]),
         "m_1p8re_msun": quantiles(der["m_1p8re_msun"]),
         "ml_half_v": quantiles(der["ml_half_v"]) if "ml_half_v" in der else None,
+        # one-sided 95% lower bound (5th percentile) of M/L_V, quoted by the verdict
+        "ml_half_v_lower95": (
+            float(np.percentile(der["ml_half_v"], 5)) if "ml_half_v" in der else None
+        ),
     }
     if "log10_j" in der:
         keys = angle_keys()
@@ -165,6 +170,7 @@ def _models(results, names, specs):
     for n in names:
         entry = model_summary(results[n])
         entry["spec_source"] = str(specs[n].source)
+        entry["priors"] = dict(specs[n].parameters)  # the spec's priors (ln B depends on them)
         entry["reused_from"] = results[n]["reused_from"]
         entry["warm_start"] = results[n]["warm_start"]
         if n != STARS_ONLY:
@@ -199,4 +205,10 @@ def build_summary(stars, satellite, settings, foreground, results, specs, satell
     summary["models"], warnings = _models(results, names, specs)
     summary["jd_conventions"] = dict(JD_CONVENTIONS)
     summary["warnings"].extend(warnings)
+    binaries = results[STARS_ONLY]["binaries"]
+    summary["verdict"] = build_verdict(
+        clean(summary),
+        None if binaries is None else specs[STARS_ONLY].binary_fraction_range,
+        dispersion_steps(results[ref]),
+    )
     return clean(summary)
