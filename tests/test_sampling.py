@@ -60,3 +60,20 @@ def test_warm_start_keeps_the_earlier_posterior_as_mass_matrix():
         init_params=init, inverse_mass_matrix=COV, adapt_mass_matrix=False,
     )  # fmt: skip
     assert steps <= 8 < 3 * steps < np.asarray(wrong.get_extra_fields()["num_steps"]).mean()
+
+
+def test_chains_on_several_threads_give_the_same_draws(monkeypatch):
+    # one group of chains per core runs on its own thread; every chain keeps its key and start,
+    # so the draws must not depend on how the chains are grouped (3 chains: groups of 1 and 2)
+    from halo.inference.sampling import chain_threads
+
+    runs = {}
+    for k in ("1", "2", "3"):
+        monkeypatch.setenv("HALO_CHAIN_THREADS", k)
+        assert chain_threads(3) == int(k)
+        mcmc = run_nuts(correlated_model, chains=3, warmup=50, draws=60, seed=4, progress=True)
+        runs[k] = mcmc.get_samples(group_by_chain=True)
+    for k in ("2", "3"):
+        for name in runs["1"]:
+            np.testing.assert_array_equal(runs["1"][name], runs[k][name])
+    assert runs["1"]["b_first"].shape == (3, 60)

@@ -1,8 +1,8 @@
 """NUTS on CPU (numpyro) and convergence diagnostics (arviz).
 
-The chains run inside one compiled program (``lax.map`` over chains under ``jit``): on CPU this
-is several times faster than numpyro's Python-driven sequential method, and as fast as one XLA
-device per chain on the 2-core machines measured (benchmarks/bench_fit.py).
+The chains run inside compiled programs (``lax.map`` over chains under ``jit``), one group of
+chains per core on its own thread: on CPU this is several times faster than numpyro's
+Python-driven sequential method (benchmarks/bench_fit.py, benchmarks/bench_chains.py).
 """
 
 import dataclasses
@@ -25,27 +25,78 @@ ESS_MIN = 400.0
 PROGRESS_STRIDE = 10
 
 
-def _compiled_chain_map(fn):
-    """Run the chains one after the other inside one compiled program (``lax.map`` under jit).
+def chain_threads(n_chains):
+    """How many chains run at once: ``HALO_CHAIN_THREADS`` if set (a batch worker that owns one
+    core sets 1), else the cores this process may use, at most ``n_chains``."""
+    import os
 
-    On CPU this is several times faster than numpyro's Python-driven sequential method and as
-    fast as one device per chain, without touching the XLA device count. ``fn`` is numpyro's
-    per-chain function with the model arguments bound (a partial): they are passed to the
-    compiled program as arguments, not baked into it as constants, so that catalogues padded to
-    the same bucket share one program (in memory and in the persistent compilation cache).
+    env = os.environ.get("HALO_CHAIN_THREADS", "").strip()
+    if env.isdigit() and int(env) > 0:
+        cores = int(env)
+    else:
+        cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+    return max(1, min(int(n_chains), cores or 1))
+
+
+def _compiled_chain_map(fn):
+    """Run the chains inside compiled programs (``lax.map`` over chains under jit), the chains
+    split into :func:`chain_threads` groups that run at the same time on their own threads
+    (XLA releases the GIL while a program runs), so that every core samples.
+
+    On CPU one program per group is several times faster than numpyro's Python-driven sequential
+    method, and needs no change of the XLA device count. ``fn`` is numpyro's per-chain function
+    with the model arguments bound (a partial): they are passed to the compiled program as
+    arguments, not baked into it as constants, so that catalogues padded to the same bucket
+    share one program (in memory and in the persistent compilation cache). Every chain keeps
+    its own key and start, so the draws do not depend on the number of groups.
     """
     import jax
 
     bound = dict(getattr(fn, "keywords", None) or {})
     if not {"args", "kwargs"} <= bound.keys():  # another numpyro layout: arguments as constants
-        return jax.jit(lambda map_args: jax.lax.map(fn, map_args))
+        compiled = jax.jit(lambda map_args: jax.lax.map(fn, map_args))
+        return lambda map_args: _in_groups(compiled, (), map_args)
     args, kwargs = bound.pop("args"), bound.pop("kwargs")
 
     def chains(map_args, args, kwargs):
         return jax.lax.map(lambda m: fn.func(m, args=args, kwargs=kwargs, **bound), map_args)
 
     compiled = jax.jit(chains)
-    return lambda map_args: compiled(map_args, args, kwargs)
+    return lambda map_args: _in_groups(compiled, (args, kwargs), map_args)
+
+
+def _in_groups(jitted, extra, map_args):
+    """``jitted(group, *extra)`` on consecutive groups of chains (leading axis of
+    ``map_args``), one thread per group, results joined back in chain order.
+
+    The programs are traced and compiled here, on the calling thread, before any group runs:
+    numpyro's effect handlers live on one process-wide stack, so two threads must never trace
+    a model at the same time. The threads only run compiled executables.
+    """
+    import concurrent.futures
+
+    import jax
+    import jax.numpy as jnp
+
+    n = jax.tree.leaves(map_args)[0].shape[0]
+    k = chain_threads(n)
+    if k == 1:
+        return jitted(map_args, *extra)
+    edges = np.linspace(0, n, k + 1).round().astype(int)
+    groups = [jax.tree.map(lambda a, i=i: a[edges[i] : edges[i + 1]], map_args) for i in range(k)]
+    executables = {}
+    for g in groups:
+        size = jax.tree.leaves(g)[0].shape[0]
+        if size not in executables:
+            executables[size] = jitted.lower(g, *extra).compile()
+
+    def one(group):
+        exe = executables[jax.tree.leaves(group)[0].shape[0]]
+        return jax.block_until_ready(exe(group, *extra))
+
+    with concurrent.futures.ThreadPoolExecutor(max_workers=k) as pool:
+        outs = list(pool.map(one, groups))
+    return jax.tree.map(lambda *xs: jnp.concatenate(xs, axis=0), *outs)
 
 
 def _progress_kernel(model, total, enabled, **kw):
