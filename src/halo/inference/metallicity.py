@@ -160,16 +160,20 @@ def _real(inputs, k):
     return out
 
 
-def _max_likelihood(data, lo, hi, s_max, n_mu=441, n_spread=101):
+def _max_likelihood(data, lo, hi, s_max, n_mu=201, n_spread=41):
     """(ln L at the maximum over mu and spread, the spread there, max ln L at spread 0): the
-    best point of a grid (``n_mu`` x ``n_spread`` over the prior), refined by a bounded search
-    (L-BFGS-B in (mu, spread); bounded Brent in mu at spread 0)."""
-    mus, spreads = np.linspace(lo, hi, n_mu), np.linspace(0.0, s_max, n_spread)
+    best point of a grid (``n_mu`` means over the data's range within the prior, ``n_spread``
+    spreads over the prior), refined by a bounded search (L-BFGS-B in (mu, spread); bounded
+    Brent in mu at spread 0)."""
+    x = data["feh"]
+    mus = np.linspace(max(lo, x.min() - 0.1), min(hi, x.max() + 0.1), n_mu)
+    spreads = np.linspace(0.0, s_max, n_spread)
     ll = np.sum(_per_star(np, data, mus[:, None, None], spreads[None, :, None]), axis=-1)
     i, j = np.unravel_index(int(np.argmax(ll)), ll.shape)
     res = optimize.minimize(
         lambda x: -np.sum(_per_star(np, data, x[0], x[1])),
-        np.array([mus[i], spreads[j]]),
+        # off the edge: at spread 0 the gradient in the spread vanishes (ln L depends on s^2)
+        np.array([mus[i], max(spreads[j], 0.25 * spreads[1])]),
         method="L-BFGS-B",
         bounds=[(lo, hi), (0.0, s_max)],
     )
