@@ -81,10 +81,13 @@ def _tides_entry(d):
     return entry
 
 
-def _survival_reading(p, t_med, age):
+def _survival_reading(p, t_q, age):
+    if t_q is None:
+        return "no dissolution time: the Milky Way's field sets no tidal limit at these points"
+    span = f"{t_q['median']:.3g} Gyr (68%: {t_q['p16']:.3g}-{t_q['p84']:.3g})"
     if p is None:
-        return f"dissolution time {t_med:.3g} Gyr; no age_gyr in the satellite file to compare"
-    text = f"dissolution time {t_med:.3g} Gyr against an age of {age:.3g} Gyr (p = {p:.3f}): "
+        return f"dissolution time {span}; no age_gyr in the satellite file to compare"
+    text = f"dissolution time {span} against an age of {age:.3g} Gyr (p = {p:.3f}): "
     if p < 0.05:
         return text + "stars alone would not survive; the stars-only hypothesis is disfavoured"
     if p > 0.5:
@@ -92,33 +95,41 @@ def _survival_reading(p, t_med, age):
     return text + "survival of stars alone is uncertain"
 
 
-def _method_note(frac_bm, n_med):
+def _method_note(frac_bm, n_med, frac_over):
     lo, hi = BM03_N_RANGE
     if frac_bm == 0:
-        return (
+        note = (
             f"N ~ {n_med:.3g} stars lies below every N-body calibration (ln(0.02 N) < 1): the "
             "evaporation time in relaxation times and the tidal filling r_h / r_J were used"
         )
-    note = f"Baumgardt & Makino (2003) for {100 * frac_bm:.0f}% of the draws"
-    if not lo <= n_med <= hi:
-        note += f", extrapolated outside its calibration ({lo}-{hi} stars)"
+    else:
+        note = f"Baumgardt & Makino (2003) for {100 * frac_bm:.0f}% of the draws"
+        if not lo <= n_med <= hi:
+            note += f", extrapolated outside its calibration ({lo}-{hi} stars)"
+    if frac_over > 0:
+        note += (
+            f"; {100 * frac_over:.0f}% of the draws have r_h >= r_J and dissolve within one "
+            "orbit (2 pi / Omega)"
+        )
     return note
 
 
 def _survival_entry(s, satellite):
     p = float(np.mean(s["survives"])) if "survives" in s else None
-    t_med = float(np.nanmedian(s["dissolution_time_gyr"]))
+    t_q = quantiles(s["dissolution_time_gyr"])
     frac_bm = float(np.mean(s["method"] == METHOD_BM03))
+    frac_over = float(np.mean(s["filling"] >= 1.0))
     n_stars = s["n_stars"]
     return {
         "crossing_time_myr": quantiles(s["crossing_time_gyr"] * 1e3),
         "relaxation_time_gyr": quantiles(s["relaxation_time_gyr"]),
-        "dissolution_time_gyr": quantiles(s["dissolution_time_gyr"]),
+        "dissolution_time_gyr": t_q,
         "p_survives_age": p,
         "age_gyr": satellite.age_gyr,
         "age_err_gyr": satellite.age_err_gyr,
         "method": {"baumgardt_makino_2003": frac_bm, "evaporation": 1.0 - frac_bm},
-        "method_note": _method_note(frac_bm, float(np.median(n_stars))),
+        "method_note": _method_note(frac_bm, float(np.median(n_stars)), frac_over),
+        "fraction_tidally_overfilling": frac_over,
         "n_stars_assumed": quantiles(n_stars),
         "tidal_filling_r_half_over_jacobi": quantiles(s["filling"]),
         "half_mass_density_msun_kpc3": quantiles(s["half_mass_density"]),
@@ -126,7 +137,7 @@ def _survival_entry(s, satellite):
         "density_over_tidal": quantiles(s["density_ratio"]),
         "model": STARS_ONLY,
         "sources": dict(SURVIVAL_SOURCES),
-        "reading": _survival_reading(p, t_med, satellite.age_gyr),
+        "reading": _survival_reading(p, t_q, satellite.age_gyr),
     }
 
 
