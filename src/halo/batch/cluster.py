@@ -12,6 +12,9 @@ fight over them.
 import contextlib
 import logging
 import os
+import signal
+
+from distributed.diagnostics.plugin import WorkerPlugin
 
 from halo.core.errors import InputError
 
@@ -46,6 +49,17 @@ def _worker_env():
     if user:
         env["XLA_FLAGS"] = f"{user} {env['XLA_FLAGS']}"
     return env
+
+
+class IgnoreInterrupt(WorkerPlugin):
+    """Local workers ignore SIGINT: a Ctrl-C in the terminal reaches every process of its group,
+    and the client alone should act on it (it cancels the entries and stops the workers)."""
+
+    name = "halo-ignore-sigint"
+
+    def setup(self, worker):
+        with contextlib.suppress(ValueError):  # only possible in the process's main thread
+            signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 def local_cluster(workers):
@@ -88,4 +102,5 @@ def batch_client(scheduler=None, workers=None):
         raise InputError(f"--workers: expected a positive number of workers, got {n!r}")
     logging.getLogger("distributed").setLevel(logging.CRITICAL)
     with local_cluster(n) as cluster, Client(cluster) as client:
+        client.register_plugin(IgnoreInterrupt())
         yield client
