@@ -139,7 +139,7 @@ def test_halo_fit_writes_the_nature_section(tmp_path):
     cat = tmp_path / "cat.ecsv"
     mock.table.write(cat, format="ascii.ecsv")
     out = tmp_path / "run"
-    args = fit_command(cat, sat_file, out, "stars-only") + tiny_chains(2, 150, 150) + NO_EXTRAS
+    args = fit_command(cat, sat_file, out, "stars-only") + tiny_chains(2, 100, 100) + NO_EXTRAS
     assert main(args) == 0
     nat = json.loads((out / "summary.json").read_text())["nature"]
     assert {"tides", "survival", "caution"} <= set(nat)
