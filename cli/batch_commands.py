@@ -50,7 +50,7 @@ def batch_cmd(
     quiet: Quiet = False,
 ):
     """Fit every entry of a manifest, each one task on a Dask cluster; reruns skip finished
-    entries and retry failed ones."""
+    entries and retry failed ones (exit code 1 when an entry failed: see batch.ecsv)."""
     from halo.batch.runner import format_outcome, run_batch
     from halo.cli.options import fail
     from halo.pipeline.fit import DEFAULT_MODELS, FitSettings
