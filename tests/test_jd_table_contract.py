@@ -24,7 +24,7 @@ from halo.cli.app import main
 from halo.core.vocabulary import angle_keys
 from halo.inputs.satellite import parse_satellite
 from halo.inputs.spec import load_spec
-from halo.products.jd_tables import preferred_model
+from halo.products.jd_tables import fit_jd_table, preferred_model
 from halo.results.derived import derive
 from halo.results.dispersion import upper_limits
 from halo.results.summary import _derived
@@ -38,13 +38,17 @@ KEYS = ["0.1", "0.2", "0.3", "0.5", "2rh"]
 def _entry(post, sat, converged, ln_b):
     samples = {k: np.asarray(v).ravel() for k, v in post.items()}
     der = derive(load_spec("nfw"), sat, samples, sigma_angles_deg=[0.05])
-    return {
-        "converged": converged,
-        "parameters": {},
-        "derived": _derived({"derived": der}),
-        "evidence": {"log_z": -100.0 + ln_b, "log_z_err": 0.1},
-        "vs_stars_only": {"ln_bayes_factor": ln_b, "ln_bayes_factor_err": 0.14},
-    }, upper_limits({"derived": der})
+    return (
+        {
+            "converged": converged,
+            "parameters": {},
+            "derived": _derived({"derived": der}),
+            "evidence": {"log_z": -100.0 + ln_b, "log_z_err": 0.1},
+            "vs_stars_only": {"ln_bayes_factor": ln_b, "ln_bayes_factor_err": 0.14},
+        },
+        upper_limits({"derived": der}),
+        der,
+    )
 
 
 @pytest.fixture(scope="module")
@@ -57,10 +61,12 @@ def exported(tmp_path_factory):
     summary["dispersion"] = {"resolved": False}
     summary["upper_limits"] = {}
     summary["models"] = {}
+    results = {"stars-only": {"derived": {}}}
     folder = root / "run"
     for name, seed, conv, ln_b in MODELS:
         post = nfw_posterior(seed)
-        entry, limits = _entry(post, sat, conv, ln_b)
+        entry, limits, results[name] = _entry(post, sat, conv, ln_b)
+        results[name] = {"derived": results[name]}
         spec = root / f"{name}.toml"
         shutil.copyfile(NFW_TOML, spec)
         entry["spec_source"] = str(spec)
@@ -77,11 +83,11 @@ def exported(tmp_path_factory):
     with contextlib.redirect_stdout(printed):
         code = main(args)
     assert code == 0
-    return out, summary, printed.getvalue()
+    return out, summary, printed.getvalue(), fit_jd_table(summary, results, sat)
 
 
 def test_script_selects_one_row_per_cone(exported):
-    out, _, _ = exported
+    out = exported[0]
     # what a likelihood script does
     t = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
     best = t[t["converged"] & t["preferred"]]
@@ -97,7 +103,7 @@ def test_script_selects_one_row_per_cone(exported):
 
 
 def test_preferred_rows_equal_summary_json(exported):
-    out, summary, _ = exported
+    out, summary = exported[:2]
     t = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
     best = t[t["converged"] & t["preferred"]]
     name = best["model"][0]
@@ -123,7 +129,7 @@ def test_preferred_rows_equal_summary_json(exported):
 
 
 def test_names_units_and_short_header(exported):
-    out, _, _ = exported
+    out = exported[0]
     t = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
     assert "half_angle_deg" in t.colnames and "angle_deg" not in t.colnames
     assert not [c for c in t.colnames if "." in c]
@@ -149,7 +155,7 @@ def test_names_units_and_short_header(exported):
 
 
 def test_export_prints_headline_per_model(exported):
-    _, summary, text = exported
+    _, summary, text = exported[:3]
     lines = [ln for ln in text.splitlines() if "log10 J(0.5 deg)" in ln]
     assert len(lines) == len(MODELS)
     for (name, _, conv, _), line in zip(MODELS, lines, strict=True):
@@ -158,6 +164,23 @@ def test_export_prints_headline_per_model(exported):
         assert ("NOT CONVERGED" in line) != conv
         assert ("preferred" in line) == (name == "nfw")
     assert "template: half-width" in text and "of the whole halo's J" in text
+
+
+def test_fit_writes_the_same_table(exported):
+    """halo fit's jd_factors.ecsv (from the per-draw J and D behind summary.json) has the export's
+    columns, flags and values for the cones both hold."""
+    out, _, _, fitted = exported
+    t = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
+    assert fitted.colnames == t.colnames
+    common = t[t["angle_label"] != "0.3"]
+    assert len(fitted) == len(common)
+    for a, b in zip(fitted, common, strict=True):
+        for col in t.colnames:
+            if t[col].dtype.kind == "f":
+                assert a[col] == pytest.approx(b[col], rel=1e-13), col
+            else:
+                assert a[col] == b[col], col
+    assert fitted.meta["preferred_rule"] == t.meta["preferred_rule"]
 
 
 def test_preferred_rule_without_converged_or_evidence():

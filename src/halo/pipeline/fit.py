@@ -6,6 +6,7 @@ Output folder (contract in the design notes)::
                               quantities, evidence, LOO and the comparison with stars only
     DIR/summary.ecsv          the same quantities as a table
     DIR/<model>/posterior.nc  arviz posterior, sample stats and pointwise log-likelihood (netCDF)
+    DIR/jd_factors.ecsv       log10 J and D per dark model and cone, converged and preferred flags
     DIR/figures/*.png
 
 Every file is written atomically; the stars-only model is always fitted because every other model
@@ -113,6 +114,7 @@ def _sigma_angles(stars):
 def _write_outputs(out_dir, summary, results, stars, satellite, ctx):
     """Figures, summary.ecsv, members.ecsv, summary.json and the HTML report."""
     from halo.products.html_report import write_html_report
+    from halo.products.jd_tables import write_fit_jd_table
     from halo.products.plots import make_figures
     from halo.products.text_report import write_summary_table
 
@@ -131,6 +133,7 @@ def _write_outputs(out_dir, summary, results, stars, satellite, ctx):
     }
     write_summary_table(summary, out_dir / "summary.ecsv")
     write_members(out_dir / "members.ecsv", stars, results, list(summary["models"]), satellite)
+    write_fit_jd_table(out_dir / "jd_factors.ecsv", summary, results, satellite)
     write_json(out_dir / "summary.json", summary)
     write_html_report(out_dir)
 

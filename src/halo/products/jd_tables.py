@@ -11,12 +11,15 @@ import numpy as np
 
 from halo import __version__
 from halo.core.errors import InputError
+from halo.core.fileio import write_ecsv
 from halo.core.quantiles import quantiles
 from halo.core.vocabulary import (
     ANGLE_2RH_CONVENTION,
     QUANTILE_KEYS,
     STANDARD_ANGLES,
+    STARS_ONLY,
     angle_key,
+    angle_keys,
 )
 
 __all__ = [
@@ -26,6 +29,8 @@ __all__ = [
     "jd_table",
     "preferred_model",
     "headline_lines",
+    "fit_jd_table",
+    "write_fit_jd_table",
     "column_key",
     "CONVENTIONS",
     "USAGE",
@@ -217,6 +222,34 @@ def jd_table(rows, summary, names, satellite):
         "export_version": __version__,
     }
     return t
+
+
+def fit_jd_table(summary, results, satellite):
+    """jd_factors.ecsv of a fit, from the per-draw J and D its summary.json was made of
+    (``results[name]["derived"]``: 0.1, 0.2, 0.5 deg and 2rh); None without a dark model."""
+    names = [n for n in summary["models"] if n != STARS_ONLY]
+    names = [n for n in names if "log10_j" in results[n]["derived"]]
+    if not names:
+        return None
+    rows = []
+    for n in names:
+        der = results[n]["derived"]
+        a = np.asarray(der["angle_2rh_deg"], float)
+        jd = {
+            "labels": angle_keys(),
+            "half_angle_deg": list(STANDARD_ANGLES) + [float(np.median(a[np.isfinite(a)]))],
+            "log10_j": np.asarray(der["log10_j"]),
+            "log10_d": np.asarray(der["log10_d"]),
+        }
+        rows += jd_rows(n, jd)
+    return jd_table(rows, summary, names, satellite)
+
+
+def write_fit_jd_table(path, summary, results, satellite):
+    """Write :func:`fit_jd_table` atomically to ``path`` (nothing when no model has a halo)."""
+    table = fit_jd_table(summary, results, satellite)
+    if table is not None:
+        write_ecsv(path, table)
 
 
 def headline_lines(table, label="0.5"):
