@@ -50,6 +50,7 @@ BAD = [
     (entry_toml("x", "a.ecsv", binaries='"yes"'), "entry 1 (x): key 'binaries'"),
     (entry_toml("x", "a.ecsv", models='["nfx"]'), "entry 1 (x): key 'models': unknown model"),
     (entry_toml("x", "a.ecsv", anisotropy='"sideways"'), "entry 1 (x): --anisotropy"),
+    (entry_toml("x", "a.ecsv", columns='{speed = "v"}'), "key 'columns': --column 'speed=v'"),
     (entry_toml("a/b", "a.ecsv"), "entry 1 (a/b): key 'name': expected letters"),
     (entry_toml("batch.json", "a.ecsv"), "key 'name'"),
     (entry_toml("x", "a.ecsv") + entry_toml("X", "b.ecsv"), "entry 2 (X): key 'name': the same"),

@@ -26,6 +26,7 @@ from pathlib import Path
 from halo.core.errors import InputError
 from halo.core.fileio import read_input_text
 from halo.core.vocabulary import DEFAULT_MODELS
+from halo.inputs.columns import parse_column_overrides
 from halo.inputs.spec import load_spec
 from halo.inputs.spec_anisotropy import with_anisotropy
 from halo.pipeline.settings import FitSettings
@@ -92,7 +93,12 @@ def _models(value, base, where, anisotropy):
 def _columns(value, where):
     if not isinstance(value, dict) or not all(isinstance(v, str) for v in value.values()):
         raise InputError(f'{where}: expected a table of role = "column name", got {value!r}')
-    return tuple(f"{role}={col}" for role, col in value.items())
+    out = tuple(f"{role}={col}" for role, col in value.items())
+    try:
+        parse_column_overrides(list(out))
+    except InputError as exc:
+        raise InputError(f"{where}: {exc}") from None
+    return out
 
 
 def _settings(raw, defaults, where):
