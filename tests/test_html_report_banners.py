@@ -9,6 +9,7 @@ from html_setup import Page, copy_run, fitted_run, row_cells, sig_value, write_r
 
 from halo.core.errors import InputError
 from halo.products.html_report import write_html_report
+from halo.results.verdict import build_verdict
 
 
 @pytest.fixture(scope="module")
@@ -49,6 +50,7 @@ def test_no_banner_for_a_clean_run(run, tmp_path):
     s["warnings"] = [
         w for w in s["warnings"] if "NOT CONVERGED" not in w and "NOT RESOLVED" not in w
     ]
+    s["verdict"] = build_verdict(s, (0.0, 1.0))  # the verdict of the clean summary
     text = write_report(copy_run(run, tmp_path / "clean"), s)
     assert 'class="banner"' not in text
     assert "NOT CONVERGED" not in text and "NOT RESOLVED" not in text

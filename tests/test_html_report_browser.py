@@ -6,6 +6,7 @@ import subprocess
 
 import numpy as np
 import pytest
+from browser_cdp import Chromium
 from html_setup import NAME, Page, fitted_run
 from PIL import Image
 
@@ -79,6 +80,7 @@ def test_headless_chromium_renders_the_report(run, tmp_path):
             assert m["vs_stars_only"]["verdict"] in dom.text_of(f"verdict-{name}")
     assert "NOT RESOLVED" in dom.text_of("banner-dispersion")
     assert "Caveats" in dom.text
+    assert s["verdict"]["text"].splitlines()[0] in dom.text_of("verdict-block")
 
     shot = tmp_path / "shot.png"
     _run_chromium(
@@ -96,3 +98,38 @@ def test_headless_chromium_renders_the_report(run, tmp_path):
     # the style sheet is applied: the dispersion banner's border red (#b3141b) is on screen
     red = np.all(np.abs(px - np.array([0xB3, 0x14, 0x1B])) < 40, axis=2).sum()
     assert red > 500, f"banner colour not rendered ({red} pixels)"
+
+
+#: the first screen of a laptop browser window [CSS px] (common practice)
+VIEWPORT = (1280, 800)
+#: the report's sections in reading order
+SECTIONS = ("verdict", "models", "figures", "comparison", "diagnostics", "inputs", "notes",
+            "caveats")  # fmt: skip
+
+
+def test_verdict_above_the_fold_and_a_screenshot_per_section(run, tmp_path):
+    """Laid out by Chromium (DevTools protocol over a pipe): the verdict box lies inside the
+    first viewport, the sections follow in reading order, and each section's screenshot, saved
+    in this test's folder, is the size of its box and not blank."""
+    width, height = VIEWPORT
+    shots = tmp_path / "sections"
+    shots.mkdir()
+    with Chromium(_chromium(), tmp_path / "chromium", CHROMIUM_TIMEOUT_S) as browser:
+        browser.open(run["report"].resolve().as_uri(), width, height)
+        assert browser.evaluate("window.innerHeight") == height
+        boxes = browser.boxes('section[id^="sec-"], #verdict-block')
+        box = boxes["verdict-block"]
+        assert box["height"] > 50 and box["y"] >= 0
+        assert box["y"] + box["height"] <= height, f"verdict below the fold: {box}"
+        tops = [boxes[f"sec-{k}"]["y"] for k in SECTIONS]
+        assert tops == sorted(tops), dict(zip(SECTIONS, tops, strict=True))
+        for key in SECTIONS:
+            b = boxes[f"sec-{key}"]
+            path = browser.screenshot(b, shots / f"{key}.png")
+            with Image.open(path) as im:
+                assert im.format == "PNG"
+                assert abs(im.width - b["width"]) <= 1 and abs(im.height - b["height"]) <= 1
+                px = np.asarray(im.convert("RGB"), dtype=int)
+            ink = np.any(px < 200, axis=2).mean()
+            assert ink > 0.005, f"section {key}: screenshot nearly blank ({ink:.3%} dark pixels)"
+    assert sorted(p.name for p in shots.iterdir()) == sorted(f"{k}.png" for k in SECTIONS)

@@ -25,25 +25,24 @@ def nc_mark(m):
 
 
 def convergence_banner(summary):
-    """One banner for every model that did not converge ('' when all did)."""
+    """One compact banner for every model that did not converge ('' when all did)."""
     items = []
     for name, m in summary["models"].items():
         if m["converged"]:
             continue
-        probs = "".join(f"<li>{esc(p)}</li>" for p in m.get("problems") or [])
+        probs = "; ".join(esc(p) for p in m.get("problems") or []) or "see the diagnostics"
         items.append(
-            f'<li id="banner-nc-{slugify(name)}">Model {esc(name)} did NOT CONVERGE'
-            f'<ul class="plain">{probs}</ul></li>'
+            f'<li id="banner-nc-{slugify(name)}">Model {esc(name)} did NOT CONVERGE: {probs}</li>'
         )
     if not items:
         return ""
     return (
-        '<div class="banner" id="banner-nc" role="alert">'
+        '<div class="banner compact" id="banner-nc" role="alert">'
         '<strong class="head">NOT CONVERGED: these numbers are unreliable</strong>'
         f'<ul class="plain">{"".join(items)}</ul>'
-        "<p>Its numbers, its evidence and every comparison that involves it are unreliable "
-        "(marked &#9888; below). Rerun with more warmup, draws or chains before quoting "
-        "anything from it.</p></div>"
+        "<p>The numbers and evidence of a model that did not converge, and every comparison "
+        "that involves it, are unreliable (marked &#9888; below): rerun with more warmup, "
+        "draws or chains.</p></div>"
     )
 
 
@@ -107,6 +106,10 @@ def _nature_html(summary):
     return f'<table id="nature"><caption>Nature of the satellite</caption>{rows}</table>'
 
 
+def _line_class(line):
+    return "reading" if line.startswith("reading:") else "why" if line.startswith("why ") else ""
+
+
 def verdict_block(summary):
     """The verdict box: summary.json ``verdict.text``, line by line, then the nature."""
     v = summary.get("verdict")
@@ -114,10 +117,7 @@ def verdict_block(summary):
         return '<div class="verdict-box" id="verdict-block"><p>No verdict in this run.</p></div>'
     first, *rest = v["text"].splitlines()
     cls = "ok" if v.get("converged") else "bad"
-    lines = "".join(
-        f'<li class="{"reading" if line.startswith("reading:") else ""}">{esc(line)}</li>'
-        for line in rest
-    )
+    lines = "".join(f'<li class="{_line_class(line)}">{esc(line)}</li>' for line in rest)
     return (
         f'<div class="verdict-box" id="verdict-block"><p class="verdict-head {cls}">'
         f'{esc(first)}</p><ul class="plain">{lines}</ul>{_nature_html(summary)}</div>'

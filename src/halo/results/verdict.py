@@ -137,7 +137,7 @@ def _bayes(m, state):
     return out, f"ln B = {ln_b:+.1f}{pm}: {c.get('verdict')} [{state}]"
 
 
-def _binary_flag(summary, dark, fraction_range):
+def _binary_flag(summary, dark, fraction_range, state):
     stars = summary["models"].get(STARS_ONLY) or {}
     q = stars.get("binary_fraction")
     if not isinstance(q, dict) or fraction_range is None:
@@ -162,7 +162,7 @@ def _binary_flag(summary, dark, fraction_range):
         out["flag"] = "stars alone push the binary fraction to its prior's upper edge"
     words = (
         f"{out['flag']}: binary fraction {_pm(q, '.2f')} under stars alone, prior "
-        f"{lo:g}-{hi:g}{other}"
+        f"{lo:g}-{hi:g}{other} [{state}]"
     )
     return out, words
 
@@ -238,7 +238,7 @@ def build_verdict(summary, fraction_range=None, steps=None):
     v_sys = _q3((m.get("parameters") or {}).get("v_sys"))
     ml, ml_words = _mass_to_light(m, state)
     bayes, bayes_words = (None, None) if dark is None else _bayes(m, state)
-    binary, binary_words = _binary_flag(summary, dark, fraction_range)
+    binary, binary_words = _binary_flag(summary, dark, fraction_range, state)
     why, why_words = _why_differ(summary, steps, disp)
     reading = _reading(disp, ml, bayes, binary, state)
     head = f"VERDICT ({dark or STARS_ONLY} against stars alone; {state})"
