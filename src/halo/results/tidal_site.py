@@ -74,6 +74,23 @@ def _other_models(gal, x_judge, denominator):
     return out
 
 
+def _orbit_points(satellite, gal, samples, idx, dist, rng, progress):
+    """(present, judging positions, r_peri or None, r_g, ecc, where) of the draws ``idx``."""
+    if satellite.pm_ra_cosdec_masyr is not None:
+        v_sys = np.asarray(samples["v_sys"], float).ravel()[idx]
+        present, x_judge, r_peri, r_apo = _orbits(satellite, gal, dist, v_sys, rng, progress)
+        where = (
+            f"pericentre of orbits integrated {ORBIT_SPAN_GYR:g} Gyr back from the present "
+            "position and velocity (distance and v_sys per posterior draw, proper motion drawn "
+            "from its errors)"
+        )
+        return present, x_judge, r_peri, r_apo, (r_apo - r_peri) / (r_apo + r_peri), where
+    present = _present(satellite, dist)
+    where = "present position, circular orbit assumed (no proper motion in the satellite file)"
+    r_now = np.linalg.norm(present, axis=-1)
+    return present, present, None, r_now, np.zeros(len(dist)), where
+
+
 def tidal_site(satellite, samples, rng, *, model=None, n_site=N_SITE, progress=None):
     """(per-draw arrays, summary entry ``nature.tides.milky_way``) of the tidal field.
 
@@ -87,21 +104,10 @@ def tidal_site(satellite, samples, rng, *, model=None, n_site=N_SITE, progress=N
     dist_all = np.asarray(samples["distance"], float).ravel()
     idx = rng.choice(len(dist_all), size=min(n_site, len(dist_all)), replace=False)
     dist = dist_all[idx]
-    has_pm = satellite.pm_ra_cosdec_masyr is not None
-    if has_pm:
-        v_sys = np.asarray(samples["v_sys"], float).ravel()[idx]
-        present, x_judge, r_peri, r_apo = _orbits(satellite, gal, dist, v_sys, rng, progress)
-        ecc = (r_apo - r_peri) / (r_apo + r_peri)
-        where = (
-            f"pericentre of orbits integrated {ORBIT_SPAN_GYR:g} Gyr back from the present "
-            "position and velocity (distance and v_sys per posterior draw, proper motion drawn "
-            "from its errors)"
-        )
-    else:
-        present = x_judge = _present(satellite, dist)
-        r_apo = np.linalg.norm(present, axis=-1)
-        r_peri, ecc = None, np.zeros(len(dist))
-        where = "present position, circular orbit assumed (no proper motion in the satellite file)"
+    present, x_judge, r_peri, r_apo, ecc, where = _orbit_points(
+        satellite, gal, samples, idx, dist, rng, progress
+    )
+    has_pm = r_peri is not None
     field = {k: np.asarray(v) for k, v in tidal_field(gal, x_judge).items()}
     r_judge = np.linalg.norm(x_judge, axis=-1)
     m_judge = field["enclosed_mass"]
@@ -126,7 +132,7 @@ def tidal_site(satellite, samples, rng, *, model=None, n_site=N_SITE, progress=N
         "galactocentric_distance_q": quantiles(r_judge),
         "enclosed_mass_q": quantiles(m_judge),
         "present_distance_kpc": quantiles(np.linalg.norm(present, axis=-1)),
-        "pericentre_kpc": None if r_peri is None else quantiles(r_peri),
+        "pericentre_kpc": quantiles(r_peri) if has_pm else None,
         "apocentre_kpc": quantiles(r_apo) if has_pm else None,
         "eccentricity": quantiles(ecc) if has_pm else None,
         "n_draws": int(len(dist)),
