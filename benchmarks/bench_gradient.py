@@ -18,7 +18,6 @@ import argparse
 import time
 
 import jax
-import numpy as np
 
 import halo  # noqa: F401
 
