@@ -110,3 +110,25 @@ def test_circular_orbit_stays_circular():
         r_peri, r_apo, _ = peri_apo(gal, x0, v0, -5.0, int(5 * N_STEPS_PER_GYR))
         assert float(r_peri[0]) == pytest.approx(big_r, rel=1e-6)
         assert float(r_apo[0]) == pytest.approx(big_r, rel=1e-6)
+
+
+def test_turning_points_in_the_isothermal_sphere():
+    # in a spherical potential the pericentre and apocentre are the roots of
+    # E = L^2 / (2 r^2) + Phi(r) (Binney & Tremaine 2008 eq. 3.14 [memory]); with
+    # Phi = v_c^2 ln r solved by scipy's brentq, against the integrated orbit's extremes
+    from scipy.optimize import brentq
+
+    gal = milky_way("isothermal220")
+    x0, v0 = np.array([30.0, 0.0, 10.0]), np.array([40.0, 120.0, -30.0])
+    e = 0.5 * v0 @ v0 + 220.0**2 * np.log(np.linalg.norm(x0))
+    ell2 = np.sum(np.cross(x0, v0) ** 2)
+
+    def f(r):
+        return ell2 / (2 * r**2) + 220.0**2 * np.log(r) - e
+
+    r_now = np.linalg.norm(x0)
+    peri, apo = brentq(f, 1e-3, r_now), brentq(f, r_now, 1e3)
+    r_peri, r_apo, _ = peri_apo(gal, x0[None], v0[None], -5.0, int(5 * N_STEPS_PER_GYR))
+    # sampled at the steps: resolved to ~ (step x speed)^2 / r, below 1e-4 relative here
+    assert float(r_peri[0]) == pytest.approx(peri, rel=1e-4)
+    assert float(r_apo[0]) == pytest.approx(apo, rel=1e-4)
