@@ -142,7 +142,7 @@ def test_summary_contract_and_files(dwarf_fit):
     table = Table.read(out / "summary.ecsv", format="ascii.ecsv")
     row = table[(table["model"] == "cored") & (table["quantity"] == "derived.m_half_msun")][0]
     assert row["median"] == pytest.approx(m["derived"]["m_half_msun"]["median"])
-    for fig in ("dispersion_profile", "mass_profile", "jfactor", "corner_cored"):
+    for fig in ("dispersion_profile", "mass_profile", "jfactor", "corner_cored_1"):
         png = out / "figures" / f"{fig}.png"
         assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert not list(out.rglob("*.part"))

@@ -76,18 +76,17 @@ def test_text_summary_with_undefined_numbers(swamped):
     assert "max undefined" in text and "PSIS-LOO warning" in text
 
 
-def test_corner_plot_names_the_parameters_it_leaves_out(tmp_path, monkeypatch):
+def test_corner_plot_shows_every_scalar_parameter_on_pages(tmp_path):
+    from halo.products.plots_corner import write_corner
+
     rng = np.random.default_rng(0)
     names = [f"p{i}" for i in range(11)]
     res = {"latent": names + ["vec"], "samples": {k: rng.normal(size=200) for k in names}}
     res["samples"]["vec"] = rng.normal(size=(200, 3))
-    summary = {"models": {"m": {"converged": True}}}
-    seen = {}
-    monkeypatch.setattr(plots, "_save", lambda fig, path: seen.setdefault("fig", fig))
-    plots._corner(plots._plt(), res, tmp_path / "corner_m.png", summary, "m")
-    texts = [t.get_text() for t in seen["fig"].texts]
-    note = next(t for t in texts if "not shown" in t)
-    assert "showing 8 of 12 parameters" in note
-    for k in ("p8", "p9", "p10", "vec"):
-        assert k in note
-    plots._plt().close(seen["fig"])
+    saved = []
+    pages = write_corner(plots._plt(), res, tmp_path, "m", True, None, lambda f, p: saved.append(p))
+    assert [p.name for p in saved] == ["corner_m_1.png", "corner_m_2.png"]
+    shown = [label for _, data in pages for label in data["parameters"]]
+    assert shown == [f"p{i} [-]" for i in range(11)]  # all of them, at most 8 a page
+    assert all(len(data["parameters"]) <= 8 for _, data in pages)
+    assert pages[0][1]["not_shown"] == ["vec"]  # not scalar: named in the figure's data

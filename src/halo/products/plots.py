@@ -1,39 +1,37 @@
-"""Figures of a fit (matplotlib, Agg): dispersion profile, mass profile, J(theta), corner plots."""
+"""Figures of a fit (matplotlib, Agg), written into DIR/figures/, each with the data it shows
+beside it (<name>.json):
+
+- dispersion_profile: the members' weighted dispersion in radial bins, the models' bands, the
+  truth of a mock (:mod:`halo.products.plots_dispersion`);
+- velocity_radius, velocity_histogram, sky_map: the stars under the fitted membership
+  (:mod:`halo.products.plots_members`);
+- epoch_changes: epoch-to-epoch velocity changes (multi-epoch catalogues only,
+  :mod:`halo.products.plots_epochs`);
+- mass_profile, jfactor: enclosed mass and J(theta) of each model (here);
+- corner_<model> (or corner_<model>_1, _2 ... when its parameters need more pages,
+  :mod:`halo.products.plots_corner`).
+
+A mock's truth (the catalogue's ``truth`` header record or the truth file beside it,
+:func:`halo.products.plots_base.catalogue_truth`) is overlaid where the figure shows it.
+"""
 
 import numpy as np
 
-from halo.core.fileio import atomic_path
-from halo.physics.estimators import dispersion_ml
+from halo.products.plots_base import catalogue_truth, plt_agg, save_data, save_png, star_context
+from halo.products.plots_base import title as _title
+from halo.products.plots_corner import CORNER_PAGE, write_corner
+from halo.products.plots_dispersion import dispersion_figure
+from halo.products.plots_epochs import epochs_figure
+from halo.products.plots_members import histogram_figure, sky_figure, velocity_radius_figure
 from halo.results.derived import CURVE_ANGLES, PROFILE_RADII_PC
 
-__all__ = ["make_figures", "binned_dispersion", "corner_keys", "CORNER_MAX"]
+__all__ = ["make_figures", "CORNER_PAGE"]
 
 _COLOURS = ("tab:blue", "tab:orange", "tab:green", "tab:red", "tab:purple", "tab:brown")
 
 
 def _plt():
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    return plt
-
-
-def binned_dispersion(radius, v, v_err, per_bin=None):
-    """Maximum-likelihood dispersion in radial bins of about equal numbers of stars.
-
-    Returns (median radius, sigma, sigma_lo, sigma_hi) arrays per bin.
-    """
-    order = np.argsort(radius)
-    n = len(radius)
-    per_bin = per_bin or int(np.clip(n // 6, 8, 60))
-    nb = max(1, n // per_bin)
-    out = []
-    for idx in np.array_split(order, nb):
-        f = dispersion_ml(v[idx], v_err[idx])
-        out.append((np.median(radius[idx]), f.sigma, f.sigma_lo, f.sigma_hi))
-    return tuple(np.array(c) for c in zip(*out, strict=True))
+    return plt_agg()
 
 
 def _band(ax, x, draws, colour, label):
@@ -41,35 +39,10 @@ def _band(ax, x, draws, colour, label):
     q = np.percentile(draws, [16, 50, 84], axis=0)
     ax.fill_between(x, q[0], q[2], color=colour, alpha=0.3)
     ax.plot(x, q[1], color=colour, label=label)
+    return {"p16": q[0], "median": q[1], "p84": q[2]}
 
 
-def _save(fig, path):
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format="png", dpi=110, bbox_inches="tight")
-
-
-def _title(ax, text, summary, name=None):
-    bad = [m for m, v in summary["models"].items() if not v["converged"] and (name in (None, m))]
-    if bad:
-        text += "\nNOT CONVERGED: " + ", ".join(bad)
-    ax.set_title(text, color="red" if bad else "black", fontsize=10)
-
-
-def _dispersion_figure(plt, ctx, stars, sigma_angles, path):
-    """1. the binned dispersion of the stars and each model's band."""
-    fig, ax = plt.subplots(figsize=(6, 4.2))
-    rb, sb, lo, hi = binned_dispersion(ctx["pc"], np.asarray(stars.v), np.asarray(stars.v_err))
-    ax.errorbar(rb, sb, yerr=[sb - lo, hi - sb], fmt="ko", label="data (binned, ML)", zorder=5)
-    r_grid = np.tan(np.radians(sigma_angles)) * ctx["d0"] * 1e3
-    for n in ctx["names"]:
-        _band(ax, r_grid, ctx["results"][n]["derived"]["sigma_los_kms"], ctx["colours"][n], n)
-    ax.set_xscale("log")
-    ax.set_xlabel("projected radius R [pc] (circularised, at the catalogue distance)")
-    ax.set_ylabel(r"$\sigma_{\rm los}$ [km/s]")
-    ax.legend(fontsize=8)
-    _title(ax, f"{ctx['sat_name']}: velocity dispersion (bands: 68%)", ctx["summary"])
-    _save(fig, path)
-    plt.close(fig)
+_save = save_png
 
 
 def _estimator_points(ax, est):
@@ -89,32 +62,47 @@ def _estimator_points(ax, est):
             )
 
 
-def _mass_figure(plt, ctx, path):
+def _mass_truth(ax, truth):
+    """The mock's true M(<r_1/2) at r_1/2 (3D), or None."""
+    if not truth or truth.get("m_half_msun") is None or truth.get("r_half_3d_kpc") is None:
+        return None
+    point = {"r_half_3d_pc": 1e3 * truth["r_half_3d_kpc"], "m_half_msun": truth["m_half_msun"]}
+    ax.plot([point["r_half_3d_pc"]], [point["m_half_msun"]], marker="*", color="tab:red", ms=12,
+            ls="none", label="truth M(<r_1/2) (mock)")  # fmt: skip
+    return point
+
+
+def _mass_figure(plt, ctx, path, truth=None):
     """2. each model's enclosed mass, the stars alone and the estimators."""
     results, names, summary = ctx["results"], ctx["names"], ctx["summary"]
-    fig, ax = plt.subplots(figsize=(6, 4.2))
+    fig, ax = plt.subplots(figsize=(6.5, 4.5))
     radii = np.asarray(PROFILE_RADII_PC)
+    data = {"radius_pc": radii, "models": {}}
     for n in names:
-        _band(
+        data["models"][n] = _band(
             ax, radii, results[n]["derived"]["mass_total_msun"], ctx["colours"][n], f"{n} (total)"
         )
-    ms = results[names[0]]["derived"]["mass_stars_msun"]
-    ax.plot(radii, np.median(ms, axis=0), "k--", label="stars")
+    ms = np.median(results[names[0]]["derived"]["mass_stars_msun"], axis=0)
+    ax.plot(radii, ms, "k--", label="stars")
+    data["stars_median_msun"] = ms
     _estimator_points(ax, summary["estimators"])
+    data["truth"] = _mass_truth(ax, truth)
     ax.set_xscale("log")
     ax.set_yscale("log")
-    ax.set_xlabel("r [pc]")
-    ax.set_ylabel(r"M(<r) [M$_\odot$]")
+    ax.set_xlabel("3D radius r [pc]")
+    ax.set_ylabel(r"enclosed mass M(<r) [M$_\odot$]")
     ax.legend(fontsize=7)
     _title(ax, f"{ctx['sat_name']}: enclosed mass (bands: 68%)", summary)
     _save(fig, path)
     plt.close(fig)
+    save_data(path, data)
 
 
 def _jfactor_figure(plt, ctx, dark, path):
     """3. J against the cone half-angle of each dark model (68% and 95% bands)."""
-    fig, ax = plt.subplots(figsize=(6, 4.2))
+    fig, ax = plt.subplots(figsize=(6.5, 4.5))
     th = np.asarray(CURVE_ANGLES)
+    data = {"half_angle_deg": th, "models": {}}
     for n in dark:
         j = ctx["results"][n]["derived"]["log10_j_curve"]
         q = np.percentile(j, [2.5, 16, 50, 84, 97.5], axis=0)
@@ -122,6 +110,7 @@ def _jfactor_figure(plt, ctx, dark, path):
         ax.fill_between(th, q[0], q[4], color=colour, alpha=0.15)
         ax.fill_between(th, q[1], q[3], color=colour, alpha=0.35)
         ax.plot(th, q[2], color=colour, label=n)
+        data["models"][n] = dict(zip(("p2_5", "p16", "median", "p84", "p97_5"), q, strict=True))
     ax.set_xscale("log")
     ax.set_xlabel(r"cone half-angle $\theta$ [deg]")
     ax.set_ylabel(r"log$_{10}$ J [GeV$^2$ cm$^{-5}$]")
@@ -129,90 +118,56 @@ def _jfactor_figure(plt, ctx, dark, path):
     _title(ax, f"{ctx['sat_name']}: J-factor (bands: 68% and 95%)", ctx["summary"])
     _save(fig, path)
     plt.close(fig)
+    save_data(path, data)
 
 
-def make_figures(results, stars, satellite, sigma_angles, folder, summary):
-    """Write the figures; returns their paths."""
+def _star_figures(plt, ctx, stars, satellite, folder, truth):
+    """The figures of the stars: velocity against radius, histogram, sky map, epoch changes."""
+    paths = [folder / "velocity_radius.png", folder / "velocity_histogram.png",
+             folder / "sky_map.png"]  # fmt: skip
+    velocity_radius_figure(plt, ctx, stars, paths[0], truth)
+    histogram_figure(plt, ctx, stars, satellite, paths[1], truth)
+    sky_figure(plt, ctx, stars, satellite, paths[2], truth)
+    if epochs_figure(plt, ctx, stars, folder / "epoch_changes.png", truth) is not None:
+        paths.append(folder / "epoch_changes.png")
+    return paths
+
+
+def make_figures(results, stars, satellite, sigma_angles, folder, summary, truth=None):
+    """Write the figures (and each one's data as <name>.json beside it); returns the PNG paths.
+
+    ``truth``: a mock's truth record; by default the one the catalogue file carries (None for
+    other catalogues).
+    """
     from pathlib import Path
 
     plt = _plt()
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    d0 = satellite.distance_kpc
+    truth = catalogue_truth(stars) if truth is None else truth
     names = list(summary["models"])
     ctx = {
         "results": results,
         "summary": summary,
         "names": names,
         "colours": dict(zip(names, _COLOURS * 3, strict=False)),
-        "d0": d0,
-        "pc": np.tan(np.radians(np.asarray(stars.radius_deg))) * d0 * 1e3,
+        "d0": satellite.distance_kpc,
         "sat_name": satellite.name,
+        "sigma_angles": np.asarray(sigma_angles),
+        "stars": star_context(stars, results, names, satellite),
     }
-    paths = [folder / "dispersion_profile.png", folder / "mass_profile.png"]
-    _dispersion_figure(plt, ctx, stars, sigma_angles, paths[0])
-    _mass_figure(plt, ctx, paths[1])
+    paths = [folder / "dispersion_profile.png"]
+    dispersion_figure(plt, ctx, stars, sigma_angles, paths[0], truth)
+    paths += _star_figures(plt, ctx, stars, satellite, folder, truth)
+    paths.append(folder / "mass_profile.png")
+    _mass_figure(plt, ctx, paths[-1], truth)
     dark = [n for n in names if "log10_j_curve" in results[n]["derived"]]
     if dark:
         paths.append(folder / "jfactor.png")
         _jfactor_figure(plt, ctx, dark, paths[-1])
     for n in names:
-        paths.append(folder / f"corner_{n}.png")
-        _corner(plt, results[n], paths[-1], summary, n)
+        converged = summary["models"][n]["converged"]
+        for path, data in write_corner(plt, results[n], folder, n, converged, truth, _save):
+            save_data(path, data)
+            paths.append(path)
     return paths
-
-
-#: the corner plot shows at most this many parameters (the figure names those left out)
-CORNER_MAX = 8
-
-
-def corner_keys(res):
-    """(parameters the corner plot shows, parameters left out: beyond CORNER_MAX, or not
-    scalar)."""
-    scalar = [k for k in res["latent"] if np.ndim(res["samples"][k]) == 1]
-    other = [k for k in res["latent"] if k not in scalar]
-    return scalar[:CORNER_MAX], scalar[CORNER_MAX:] + other
-
-
-def _corner_panel(ax, res, keys, i, j):
-    """Panel (i, j) of the corner plot: a histogram on the diagonal, a 2-d histogram below."""
-    k = len(keys)
-    x = np.asarray(res["samples"][keys[j]])
-    if i == j:
-        ax.hist(x, bins=40, color="0.3", histtype="step")
-        ax.set_yticks([])
-    else:
-        ax.hist2d(x, np.asarray(res["samples"][keys[i]]), bins=40, cmap="Greys")
-    if i == k - 1:
-        ax.set_xlabel(keys[j], fontsize=7)
-    else:
-        ax.set_xticklabels([])
-    if j == 0 and i > 0:
-        ax.set_ylabel(keys[i], fontsize=7)
-    elif j > 0:
-        ax.set_yticklabels([])
-    ax.tick_params(labelsize=6)
-
-
-def _corner(plt, res, path, summary, name):
-    keys, left_out = corner_keys(res)
-    k = len(keys)
-    fig, axes = plt.subplots(k, k, figsize=(1.6 * k + 1, 1.6 * k + 1), squeeze=False)
-    for i in range(k):
-        for j in range(k):
-            if j > i:
-                axes[i, j].axis("off")
-            else:
-                _corner_panel(axes[i, j], res, keys, i, j)
-    converged = summary["models"][name]["converged"]
-    fig.suptitle(
-        f"{name}" + ("" if converged else "  (NOT CONVERGED)"),
-        color="black" if converged else "red",
-    )
-    if left_out:
-        fig.text(
-            0.98, 0.98, f"showing {k} of {k + len(left_out)} parameters; not shown: "
-            + ", ".join(left_out), ha="right", va="top", fontsize=8, color="darkred", wrap=True,
-        )  # fmt: skip
-    _save(fig, path)
-    plt.close(fig)

@@ -5,38 +5,78 @@ import tomllib
 from importlib import resources
 from pathlib import Path
 
-from halo.products.plots import CORNER_MAX
+from halo.products.plots_corner import CORNER_PAGE
 from halo.products.report_cells import esc
 from halo.products.report_sources import embed_png, figure_list
+from halo.results.members import LIKELY_BINARY_BAYES_FACTOR
 
 __all__ = ["figures", "caveats"]
+
+
+def _corner_caption(stem):
+    """(model, page) of a corner file stem: corner_<model> or corner_<model>_<page>."""
+    rest = stem[len("corner_") :]
+    head, _, tail = rest.rpartition("_")
+    if head and tail.isdigit():
+        return head, int(tail)
+    return rest, None
+
+
+_CAPTIONS = {
+    "dispersion_profile": (
+        "{name}: line-of-sight velocity dispersion against projected radius. Black points: "
+        "maximum of the weighted likelihood in radial bins of about equal total weight, each star "
+        "weighted by p_member (1 - p_binary) (the fit's membership and binary probabilities), "
+        "with 68% intervals counted with the effective number of stars; grey squares: all stars "
+        "unweighted (field stars and binaries inflate them); lines and bands: each model's "
+        "median and 68% interval; dashed red: the true profile when the input is a mock. Lower "
+        "panel: each star's velocity offset, the stars the weights exclude (weight below 0.5) "
+        "faint."
+    ),
+    "velocity_radius": (
+        "{name}: line-of-sight velocity of each star against projected radius, coloured by its "
+        "membership probability; the line is the fitted systemic velocity (red circles: the "
+        "field stars of a mock)."
+    ),
+    "velocity_histogram": (
+        "{name}: histogram of the velocities with the fitted member component (Gaussians of "
+        "the model dispersion plus each star's error about v_sys, weighted by membership) and "
+        "the fitted field component, both in stars per bin."
+    ),
+    "sky_map": (
+        "{name}: sky positions as tangent-plane offsets (east to the left), coloured by "
+        "membership probability, with the half-light ellipse (major-axis half-light radius, "
+        "ellipticity and position angle east of north of the satellite file)."
+    ),
+    "epoch_changes": (
+        "{name}: epoch-to-epoch velocity changes |dv| against their errors sigma_dv for the "
+        "stars measured more than once, likely binaries (members whose binary Bayes factor "
+        f"exceeds {LIKELY_BINARY_BAYES_FACTOR:g}) in red, non-members as crosses; right: "
+        "|dv| / sigma_dv against the half-normal expected of constant velocities."
+    ),
+    "mass_profile": (
+        "{name}: enclosed mass M(&lt;r) of each model (median and 68% band), the stars alone "
+        "(dashed) and the closed-form estimators at their radii."
+    ),
+    "jfactor": (
+        "{name}: J-factor against the half-angle of the cone for each dark model (median, "
+        "68% and 95% bands)."
+    ),
+}
 
 
 def _caption(rel, summary):
     stem = Path(rel).stem
     name = esc(summary["satellite"].get("name"))
-    if stem == "dispersion_profile":
-        return (
-            f"{name}: line-of-sight velocity dispersion against projected radius. Points: "
-            "maximum-likelihood dispersion of the stars in radial bins; lines and bands: each "
-            "model's median and 68% interval."
-        )
-    if stem == "mass_profile":
-        return (
-            f"{name}: enclosed mass M(&lt;r) of each model (median and 68% band), the stars alone "
-            "(dashed) and the closed-form estimators at their radii."
-        )
-    if stem == "jfactor":
-        return (
-            f"{name}: J-factor against the half-angle of the cone for each dark model (median, "
-            "68% and 95% bands)."
-        )
+    if stem in _CAPTIONS:
+        return _CAPTIONS[stem].format(name=name)
     if stem.startswith("corner_"):
-        model = esc(stem[len("corner_") :])
+        model, page = _corner_caption(stem)
+        where = "" if page is None else f" (page {page}; at most {CORNER_PAGE} parameters a page)"
         return (
-            f"Posterior of model {model}: histograms of the sampled parameters (at most "
-            f"{CORNER_MAX}; the figure names any left out) on the diagonal and pairwise "
-            "two-dimensional histograms below it."
+            f"Posterior of model {esc(model)}{where}: physical parameters first, then the "
+            "nuisances; histograms on the diagonal, 68% and 95% contours of the smoothed "
+            "two-dimensional densities below it (red: the truth of a mock)."
         )
     return f"Figure {esc(rel)}."
 
