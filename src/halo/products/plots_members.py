@@ -254,6 +254,11 @@ def histogram_figure(plt, ctx, stars, satellite, path, truth):
         "v_sys_kms": sc["v_sys"],
         "n_member_expected": float(np.sum(sc["member_prob"])),
         "n_stars": int(v.size),
+        "components": (
+            "members: sum_i p_member,i N(v | v_sys, sigma_los(R_i)^2 + e_i^2), sigma_los the "
+            "model's median profile (binary orbital motion not included); field: sum_i (1 - "
+            "p_member,i) sum_m a_m N(v | mu_m, s_m^2 + e_i^2) of the fitted field model"
+        ),
     }
     save_data(path, data)
     return data

@@ -40,8 +40,9 @@ _CAPTIONS = {
     ),
     "velocity_histogram": (
         "{name}: histogram of the velocities with the fitted member component (Gaussians of "
-        "the model dispersion plus each star's error about v_sys, weighted by membership) and "
-        "the fitted field component, both in stars per bin."
+        "the model dispersion plus each star's error about v_sys, weighted by membership; no "
+        "binary orbital motion) and the fitted field component, both in stars per bin; right: "
+        "the members' peak."
     ),
     "sky_map": (
         "{name}: sky positions as tangent-plane offsets (east to the left), coloured by "
