@@ -257,17 +257,17 @@ def test_calibration_ten_mocks():
 
 
 @pytest.mark.slow
-def test_calibration_fifty_mocks():
-    """Spread 0.3 dex: its 68% interval holds the truth 68 +- 10% of the time, the mean's too.
-    Spread 0: a central interval cannot hold a truth on the prior's edge, so the checks are the
-    false-resolution rate (expected 2.3%, Self & Liang 1987), the 95% upper limit and the mean's
-    coverage (at least 58%: the spread's posterior mass above 0 widens the mean's interval, so it
-    may over-cover)."""
-    cover_s, cover_mu, resolved, upper = _calibration(0.3, 50, 31)
+def test_calibration_hundred_mocks():
+    """100 mocks per case (binomial sd of a 68% rate: 4.7%). Spread 0.3 dex: its 68% interval
+    holds the truth 68 +- 10% of the time, the mean's too. Spread 0: a central interval cannot
+    hold a truth on the prior's edge, so the checks are the false-resolution rate (expected
+    2.3%, Self & Liang 1987), the 95% upper limit and the mean's coverage (at least 58%: the
+    spread's posterior mass above 0 widens the mean's interval, so it may over-cover)."""
+    cover_s, cover_mu, resolved, upper = _calibration(0.3, 100, 31)
     assert 0.58 <= cover_s <= 0.78 and 0.58 <= cover_mu <= 0.78, (cover_s, cover_mu)
-    assert resolved == 1.0 and upper >= 0.9
-    cover_s, cover_mu, resolved, upper = _calibration(0.0, 50, 32)
-    assert cover_mu >= 0.58 and resolved <= 0.1 and upper == 1.0, (cover_mu, resolved)
+    assert resolved >= 0.95 and upper >= 0.9, (resolved, upper)
+    cover_s, cover_mu, resolved, upper = _calibration(0.0, 100, 32)
+    assert cover_mu >= 0.58 and resolved <= 0.08 and upper == 1.0, (cover_mu, resolved)
 
 
 def test_section_upper_limit_at_zero_spread_and_resolved_spread():
