@@ -213,6 +213,23 @@ def test_zero_spread_test_follows_the_chi_bar_squared_null():
     assert 3 <= np.sum(stat > 2.71) <= 19, (expect, np.sum(stat > 2.71))
 
 
+def test_field_stars_do_not_make_a_spread():
+    """Members of one metallicity and metal-rich field stars (N(-0.6, 0.3), not the field
+    distribution the fit assumes) that the velocities could not rule out (membership
+    0.05-0.9): with the membership probabilities the spread is not resolved; taken as members,
+    the field stars make one every time."""
+    rng = np.random.default_rng(5)
+    with_p, without = [], []
+    for _ in range(40):
+        e = rng.uniform(0.1, 0.3, 65)
+        x = np.r_[-2.0 + e[:50] * rng.standard_normal(50), rng.normal(-0.6, 0.3, 15)]
+        x[50:] += e[50:] * rng.standard_normal(15)
+        p = np.r_[np.full(50, 0.95), rng.uniform(0.05, 0.9, 15)]
+        with_p.append(feh_model.spread_test(feh_model.feh_inputs(x, e, p)[0])["resolved"])
+        without.append(feh_model.spread_test(feh_model.feh_inputs(x, e)[0])["resolved"])
+    assert np.mean(with_p) <= 0.1 and np.mean(without) == 1.0
+
+
 def _mocks(truth, k, seed):
     """``k`` catalogues of 30-100 stars: membership probabilities (80% at 0.99, the others
     uniform in 0.05-0.95), each star's class drawn from its probability, [Fe/H] from the mock."""
