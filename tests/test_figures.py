@@ -221,3 +221,38 @@ def test_epoch_changes_of_constant_stars_are_half_normal():
     ratio = np.abs(pairs["dv"]) / pairs["sigma_dv"]
     assert ratio.size == 400
     assert stats.kstest(ratio, stats.halfnorm.cdf).pvalue > 0.01  # scipy.stats.halfnorm
+
+
+def test_epoch_figure_marks_the_variable_members(tmp_path):
+    from halo.inputs.catalogue import stars_from_table
+    from halo.products.plots_base import plt_agg
+    from halo.products.plots_epochs import epochs_figure
+
+    sat = parse_satellite(DWARF)
+    mock = make_mock(
+        sat, None, n_stars=300, seed=6, method="gaussian", epochs_mjd=[0.0, 200.0],
+        binary_fraction=0.5, error_range_kms=(0.2, 0.5),
+    )  # fmt: skip
+    stars = stars_from_table(mock.table, sat, source="mock")
+    # probabilities standing in for a fit's: binary when the epochs disagree (chi2 p < 0.01)
+    variable = np.asarray(stars.p_var) < 0.01
+    res = {"binary_prob": np.where(variable, 0.9, 0.2), "samples": {"f_binary": np.full(50, 0.3)}}
+    ctx = {
+        "results": {"m": res},
+        "summary": {"models": {"m": {"converged": True}}},
+        "sat_name": "mock",
+        "stars": {"model": "m", "member_prob": np.ones(stars.n_stars)},
+    }
+    binary_ids = np.flatnonzero(np.asarray(mock.stars["is_binary"])).tolist()
+    data = epochs_figure(
+        plt_agg(), ctx, stars, tmp_path / "epoch_changes.png", {"binary_ids": binary_ids}
+    )
+    saved = json.loads((tmp_path / "epoch_changes.json").read_text())
+    assert saved["likely_binary"] == data["likely_binary"]
+    likely = np.asarray(saved["likely_binary"])
+    true_bin = np.asarray(saved["true_binary"])
+    # Bayes factor (0.9 / 0.1) / (0.3 / 0.7) = 21 > 3 exactly for the variable stars
+    assert likely.sum() == variable.sum() > 5
+    assert np.all(np.asarray(saved["ratio"])[likely] > 2.5)  # chi2_1 p < 0.01: |dv|/sigma > 2.58
+    assert true_bin[likely].mean() > 0.9  # the mock has no other source of variability
+    assert sum(saved["hist_counts"]) == len(saved["ratio"]) == stars.n_stars
