@@ -100,6 +100,10 @@ def metallicity_section(stars, member_prob, seed):
     if feh is None or not np.isfinite(np.asarray(feh, dtype=float)).any():
         return None
     p = None if member_prob is None else np.asarray(member_prob, dtype=float)
+    if p is not None and (p.shape != np.shape(feh) or not np.isfinite(p).all()):
+        raise ValueError(
+            f"member_prob: expected {np.size(feh)} finite values (one per star), got {p.shape}"
+        )
     samples, diag, inputs, n = fit_metallicity(feh, stars.feh_err, p, seed=seed)
     test = spread_test(inputs)
     spread = samples["spread_feh"]
