@@ -254,5 +254,6 @@ def test_epoch_figure_marks_the_variable_members(tmp_path):
     # Bayes factor (0.9 / 0.1) / (0.3 / 0.7) = 21 > 3 exactly for the variable stars
     assert likely.sum() == variable.sum() > 5
     assert np.all(np.asarray(saved["ratio"])[likely] > 2.5)  # chi2_1 p < 0.01: |dv|/sigma > 2.58
-    assert true_bin[likely].mean() > 0.9  # the mock has no other source of variability
+    # the mock has no other source of variability: false alarms are 1% of the ~160 single stars
+    assert true_bin[likely].mean() > 0.8
     assert sum(saved["hist_counts"]) == len(saved["ratio"]) == stars.n_stars
