@@ -15,7 +15,7 @@ import time
 import uuid
 from pathlib import Path
 
-from halo.batch.cluster import batch_client
+from halo.batch.cluster import batch_client, default_workers
 from halo.batch.hashing import entry_hash
 from halo.batch.manifest import read_manifest
 from halo.batch.records import read_batch, write_batch
@@ -89,6 +89,15 @@ def _check_out_dir(out):
     if not os.access(out, os.W_OK | os.X_OK):
         raise InputError(f"--out {out}: not writable")
     return out
+
+
+def _local_workers(workers, n_todo):
+    """Worker processes of a local cluster: the request (default the core count), no more than
+    there are entries to run."""
+    n = default_workers() if workers is None else workers
+    if isinstance(n, bool) or not isinstance(n, int) or n < 1:
+        raise InputError(f"--workers: expected a positive number of workers, got {n!r}")
+    return min(n, n_todo)
 
 
 def _outcome(future):
@@ -194,7 +203,7 @@ def run_batch(
     skipped = [r["name"] for r in records if r["status"] == "done"]
     if todo:
         _remove_leftovers(out_dir, [e.name for e in todo])
-        _run(todo, records, out_dir, (scheduler, workers), progress)
+        _run(todo, records, out_dir, (scheduler, _local_workers(workers, len(todo))), progress)
     return BatchOutcome(records, [e.name for e in todo], skipped, time.perf_counter() - t0)
 
 
