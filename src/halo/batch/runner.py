@@ -6,6 +6,10 @@ every finished entry DIR/batch.json and DIR/batch.ecsv are rewritten atomically,
 (SIGINT, a dying client) loses no finished result. A worker that dies mid-entry (killed, out of
 memory) loses only that attempt: the scheduler runs the entry again on another worker, up to
 ``distributed.scheduler.allowed-failures`` times (3 by default), before it is recorded as failed.
+
+With a scheduler address, every worker must have halo installed and see the manifest's files and
+DIR at the same absolute paths as the client (a shared file system): the tasks carry the paths,
+not the data.
 """
 
 import os
