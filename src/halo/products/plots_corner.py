@@ -30,14 +30,14 @@ _SMOOTH = 1.0
 _NUISANCE_LABELS = {
     "v_sys": "v_sys [km/s]",
     "distance": "distance [kpc]",
-    "r_half_pc": "R_half (major axis) [pc]",
-    "m_star_d0": "M_star (at file distance) [Msun]",
+    "r_half_pc": "R_half, major axis [pc]",
+    "m_star_d0": "M_star at d_file [Msun]",
     "ml_v": "M_star/L_V [Msun/Lsun]",
     "abs_mag_v": "M_V [mag]",
     "f_binary": "binary fraction [-]",
     "f_member": "member fraction [-]",
-    "v_fg": "field mean velocity [km/s]",
-    "log10_sigma_fg": "log10 field dispersion [km/s]",
+    "v_fg": "field mean v [km/s]",
+    "log10_sigma_fg": "log10 field sigma [km/s]",
 }
 _PRETTY = {"m200": "M200", "rho_s": "rho_s", "beta_0": "beta_0", "beta_inf": "beta_inf"}
 
@@ -181,16 +181,24 @@ def _pair(ax, x, y):
     return lv
 
 
+def _two_lines(label):
+    """The label with its unit on a second line."""
+    return label.replace(" [", "\n[", 1)
+
+
 def _label(ax, i, j, k, cols):
+    """Axis labels on the outer panels, in fonts that grow with the page (a page printed at
+    column width stays readable)."""
+    big = 8 + 0.4 * k
     if i == k - 1:
-        ax.set_xlabel(cols[j][0], fontsize=8)
+        ax.set_xlabel(_two_lines(cols[j][0]), fontsize=big)
     else:
         ax.set_xticklabels([])
     if j == 0 and i > 0:
-        ax.set_ylabel(cols[i][0], fontsize=8)
+        ax.set_ylabel(_two_lines(cols[i][0]), fontsize=big)
     elif j > 0 or i == 0:
         ax.set_yticklabels([])
-    ax.tick_params(labelsize=7)
+    ax.tick_params(labelsize=big - 2)
     for t in ax.get_xticklabels():
         t.set_rotation(45)
 
@@ -238,7 +246,7 @@ def _panel(ax, cols, i, j, truth):
 
 def _page(plt, cols, truth, title, title_colour):
     k = len(cols)
-    size = max(4.5, 1.9 * k + 1)
+    size = max(4.5, 1.8 * k + 1.5)
     fig, axes = plt.subplots(k, k, figsize=(size, size), squeeze=False)
     for i in range(k):
         for j in range(k):
@@ -248,7 +256,7 @@ def _page(plt, cols, truth, title, title_colour):
             _panel(axes[i, j], cols, i, j, truth)
             _label(axes[i, j], i, j, k, cols)
     fig.suptitle(title, color=title_colour, fontsize=11)
-    fig.subplots_adjust(hspace=0.08, wspace=0.08)
+    fig.subplots_adjust(hspace=0.08, wspace=0.08, top=0.95 if k > 2 else 0.88)
     return fig
 
 
