@@ -71,6 +71,10 @@ def test_a_worker_killed_mid_entry_loses_only_that_attempt(tmp_path):
         assert not _non_loopback(os.getpid(), listening_only=True)
         for pid in pids.values():
             assert not _non_loopback(pid, listening_only=False), pid
+        # one core per fit: single-threaded XLA, the chains one after the other
+        env = client.run(lambda: (os.environ["XLA_FLAGS"], os.environ["HALO_CHAIN_THREADS"]))
+        for flags, chain_threads in env.values():
+            assert "--xla_cpu_multi_thread_eigen=false" in flags and chain_threads == "1"
         killer = _Killer(cluster.scheduler_address, pids)
         killer.start()
         code = main(

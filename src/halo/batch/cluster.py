@@ -5,8 +5,8 @@ The local cluster has N worker processes of one thread each, every listener (sch
 nannies, their HTTP status pages) on 127.0.0.1 with a free port: nothing is opened to the
 network, and there is no dashboard beyond those loopback status pages (the dashboard's own
 package is not a dependency). Each worker is told to use one core (the single-threaded XLA CPU
-runtime and one BLAS/OpenMP thread) before it imports JAX, so that N workers on N cores do not
-fight over them.
+runtime, one BLAS/OpenMP thread, the chains of a fit on one thread) before it imports JAX, so that
+N workers on N cores do not fight over them.
 """
 
 import contextlib
@@ -28,6 +28,7 @@ WORKER_ENV = {
     "OMP_NUM_THREADS": "1",
     "OPENBLAS_NUM_THREADS": "1",
     "MKL_NUM_THREADS": "1",
+    "HALO_CHAIN_THREADS": "1",  # the chains of a fit one after the other (halo.inference.sampling)
     "JAX_PLATFORMS": "cpu",
     "MPLBACKEND": "Agg",
     "TF_CPP_MIN_LOG_LEVEL": "3",

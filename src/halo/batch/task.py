@@ -25,7 +25,10 @@ PARTIAL_MARK = ".partial-"
 
 def prepare_worker(jax_cache):
     """Point this worker's JAX persistent compilation cache at ``jax_cache`` (the folder the
-    batch's client uses), so that every worker loads the programs any of them compiled."""
+    batch's client uses), so that every worker loads the programs any of them compiled; the
+    chains of a fit run on one thread unless the worker's environment says otherwise (one core
+    per fit)."""
+    os.environ.setdefault("HALO_CHAIN_THREADS", "1")
     if jax_cache:
         os.environ["JAX_COMPILATION_CACHE_DIR"] = str(jax_cache)
     from halo.core.cache import configure_caches
