@@ -17,6 +17,7 @@ import typer
 from typer.core import TyperCommand, TyperGroup
 
 from halo.cli import batch_commands as batch
+from halo.cli import calibrate_commands as calibrate
 from halo.cli import run_commands as run
 from halo.cli import workspace_commands as ws
 from halo.cli.options import UsageFailure
@@ -113,6 +114,7 @@ for _name, _command in (
     ("history", ws.history_cmd),
     ("export", ws.export_cmd),
     ("batch", batch.batch_cmd),
+    ("calibrate", calibrate.calibrate_cmd),
 ):
     app.command(_name, cls=_Command)(_command)
 

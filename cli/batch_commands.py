@@ -6,7 +6,7 @@ import typer
 
 from halo.cli.options import Anisotropy, Draws, Models, Quiet, Seed, Warmup
 
-__all__ = ["batch_cmd"]
+__all__ = ["batch_cmd", "check_cluster_options", "fit_settings"]
 
 MANIFEST_HELP = (
     "manifest (TOML): one [[entry]] table per fit with name, catalogue, satellite and optional "
@@ -19,6 +19,32 @@ SCHEDULER_HELP = (
     "on 127.0.0.1)"
 )
 WORKERS_HELP = "worker processes of the local cluster, one core each (default: the core count)"
+
+
+def check_cluster_options(scheduler, workers):
+    """--scheduler and --workers: not both, a positive number of workers (exit 2 otherwise)."""
+    from halo.cli.options import fail
+
+    if scheduler is not None and workers is not None:
+        fail("--workers: only for the local cluster; a --scheduler has its own workers")
+    if workers is not None and workers < 1:
+        fail(f"--workers: expected a positive number of workers, got {workers!r}")
+
+
+def fit_settings(chains, warmup, draws, seed, binaries, foreground, anisotropy):
+    """The FitSettings of the command line's fit options (no progress inside a batch)."""
+    from halo.pipeline.fit import FitSettings
+
+    return FitSettings(
+        chains=chains,
+        warmup=warmup,
+        draws=draws,
+        seed=seed,
+        progress=False,
+        binaries=binaries,
+        foreground="auto" if foreground is None else foreground,
+        anisotropy=anisotropy,
+    )
 
 
 def batch_cmd(
@@ -52,23 +78,10 @@ def batch_cmd(
     """Fit every entry of a manifest, each one task on a Dask cluster; reruns skip finished
     entries and retry failed ones (exit code 1 when an entry failed: see batch.ecsv)."""
     from halo.batch.runner import format_outcome, run_batch
-    from halo.cli.options import fail
-    from halo.pipeline.fit import DEFAULT_MODELS, FitSettings
+    from halo.pipeline.fit import DEFAULT_MODELS
 
-    if scheduler is not None and workers is not None:
-        fail("--workers: only for the local cluster; a --scheduler has its own workers")
-    if workers is not None and workers < 1:
-        fail(f"--workers: expected a positive number of workers, got {workers!r}")
-    settings = FitSettings(
-        chains=chains,
-        warmup=warmup,
-        draws=draws,
-        seed=seed,
-        progress=False,
-        binaries=binaries,
-        foreground="auto" if foreground is None else foreground,
-        anisotropy=anisotropy,
-    )
+    check_cluster_options(scheduler, workers)
+    settings = fit_settings(chains, warmup, draws, seed, binaries, foreground, anisotropy)
     outcome = run_batch(
         manifest,
         out,
