@@ -115,6 +115,7 @@ for _name, _command in (
     ("export", ws.export_cmd),
     ("batch", batch.batch_cmd),
     ("calibrate", calibrate.calibrate_cmd),
+    ("forecast", calibrate.forecast_cmd),
 ):
     app.command(_name, cls=_Command)(_command)
 

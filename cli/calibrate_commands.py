@@ -1,5 +1,5 @@
-"""`halo calibrate`: simulation-based calibration of the fit over a spec's prior, on the batch
-runner."""
+"""`halo calibrate` (simulation-based calibration of the fit over a spec's prior) and `halo
+forecast` (observing plans from a fit's posterior), both on the batch runner."""
 
 import shlex
 from typing import Annotated
@@ -8,7 +8,7 @@ import typer
 
 from halo.cli.options import Anisotropy, Draws, Models, Quiet, Seed, Warmup
 
-__all__ = ["calibrate_cmd"]
+__all__ = ["calibrate_cmd", "forecast_cmd"]
 
 SPEC_HELP = "model spec whose prior the truths come from: a name (any case) or a path"
 OUT_HELP = (
@@ -32,6 +32,37 @@ Workers = Annotated[int | None, typer.Option("--workers", metavar="N", help=WORK
 Chains = Annotated[int, typer.Option("--chains", metavar="N", help="number of chains")]
 
 
+Mocks = Annotated[int, typer.Option("--mocks", metavar="N", help="mocks (truths from the prior)")]
+Stars = Annotated[int, typer.Option("--stars", metavar="N", help="stars per mock, field included")]
+SatelliteFile = Annotated[str, typer.Option("--satellite", metavar="FILE", help=SAT_HELP)]
+VSysPrior = Annotated[str, typer.Option("--v-sys-prior", metavar="MEAN,SIGMA", help=VSYS_HELP)]
+ForegroundMax = Annotated[
+    float,
+    typer.Option("--foreground-max", metavar="F", help="field-star fraction uniform in [0, F]"),
+]
+Epochs = Annotated[int, typer.Option("--epochs", metavar="N", help="epochs per star, a year apart")]
+RankDraws = Annotated[
+    int,
+    typer.Option(
+        "--rank-draws", metavar="L", help="posterior draws kept per fit (thinned) for ranks"
+    ),
+]
+Bins = Annotated[
+    int, typer.Option("--bins", metavar="N", help="rank histogram bins ((L+1) % N = 0)")
+]
+MockBinaries = Annotated[
+    bool,
+    typer.Option("--binaries/--no-binaries", help="binaries in the mocks and in the fitted model"),
+]
+Foreground = Annotated[
+    bool | None,
+    typer.Option(
+        "--foreground/--no-foreground",
+        help="the fits' non-member mixture; default: decided per catalogue",
+    ),
+]
+
+
 def _v_sys_prior(text):
     from halo.cli.options import fail
 
@@ -43,12 +74,12 @@ def _v_sys_prior(text):
     return mean, sigma
 
 
-def _command_line(ctx):
-    """The command as run, every option spelled out (recorded in calibration.json)."""
-    words = ["halo", "calibrate", ctx.params["spec"]]
+def _command_line(ctx, command="calibrate", argument="spec"):
+    """The command as run, every option spelled out (recorded in its JSON output)."""
+    words = ["halo", command, ctx.params[argument]]
     for p in ctx.command.params:
         v = ctx.params.get(p.name)
-        if p.name == "spec" or v is None or not p.opts:
+        if p.name == argument or v is None or not p.opts:
             continue
         if isinstance(v, bool):
             flag = p.opts[0] if v else (p.secondary_opts or [None])[0]
@@ -63,18 +94,14 @@ def calibrate_cmd(
     ctx: typer.Context,
     spec: Annotated[str, typer.Argument(metavar="SPEC", help=SPEC_HELP)],
     out: Annotated[str, typer.Option("--out", metavar="DIR", help=OUT_HELP)],
-    mocks: int = typer.Option(200, "--mocks", metavar="N", help="mocks (truths from the prior)"),
-    stars: int = typer.Option(100, "--stars", metavar="N", help="stars per mock, field included"),
-    satellite: str = typer.Option("demo", "--satellite", metavar="FILE", help=SAT_HELP),
-    v_sys_prior: str = typer.Option("0,10", "--v-sys-prior", metavar="MEAN,SIGMA", help=VSYS_HELP),
-    foreground_max: float = typer.Option(
-        0.2, "--foreground-max", metavar="F", help="field-star fraction uniform in [0, F]"
-    ),
-    epochs: int = typer.Option(1, "--epochs", metavar="N", help="epochs per star, a year apart"),
-    rank_draws: int = typer.Option(
-        99, "--rank-draws", metavar="L", help="posterior draws kept per fit (thinned) for ranks"
-    ),
-    bins: int = typer.Option(10, "--bins", metavar="N", help="rank histogram bins ((L+1) % N = 0)"),
+    mocks: Mocks = 200,
+    stars: Stars = 100,
+    satellite: SatelliteFile = "demo",
+    v_sys_prior: VSysPrior = "0,10",
+    foreground_max: ForegroundMax = 0.2,
+    epochs: Epochs = 1,
+    rank_draws: RankDraws = 99,
+    bins: Bins = 10,
     scheduler: Scheduler = None,
     workers: Workers = None,
     model: Models = None,
@@ -82,14 +109,8 @@ def calibrate_cmd(
     warmup: Warmup = 1000,
     draws: Draws = 1000,
     seed: Seed = 0,
-    binaries: bool = typer.Option(
-        True, "--binaries/--no-binaries", help="binaries in the mocks and in the fitted model"
-    ),
-    foreground: bool | None = typer.Option(
-        None,
-        "--foreground/--no-foreground",
-        help="the fits' non-member mixture; default: decided per catalogue",
-    ),
+    binaries: MockBinaries = True,
+    foreground: Foreground = None,
     anisotropy: Anisotropy = None,
     quiet: Quiet = False,
 ):
@@ -127,5 +148,62 @@ def calibrate_cmd(
         command=_command_line(ctx),
     )
     typer.echo(format_calibration(result, out))
+    if result["failed"]:
+        raise typer.Exit(1)
+
+
+FOLDER_HELP = "a `halo fit` output folder (summary.json, members.ecsv, <model>/posterior.nc)"
+PLAN_HELP = (
+    "an observing plan: +N (N more stars), epochs (a second epoch for every star a year later) "
+    "or +N:epochs (repeatable, in the order to compare)"
+)
+
+
+def forecast_cmd(
+    ctx: typer.Context,
+    folder: Annotated[str, typer.Argument(metavar="FOLDER", help=FOLDER_HELP)],
+    out: Annotated[str, typer.Option("--out", metavar="DIR", help="output folder")],
+    plan: Annotated[list[str], typer.Option("--plan", metavar="PLAN", help=PLAN_HELP)],
+    draws_per_plan: int = typer.Option(
+        20, "--draws-per-plan", metavar="N", help="future catalogues per plan (posterior draws)"
+    ),
+    scheduler: Scheduler = None,
+    workers: Workers = None,
+    model: Annotated[
+        str | None,
+        typer.Option("--model", metavar="NAME", help="the fit's dark model (default: its first)"),
+    ] = None,
+    chains: Chains = 4,
+    warmup: Warmup = 1000,
+    draws: Draws = 1000,
+    seed: Seed = 0,
+    binaries: bool = typer.Option(True, "--binaries/--no-binaries", help="binaries in the fits"),
+    foreground: bool | None = typer.Option(
+        None, "--foreground/--no-foreground", help="the fits' non-member mixture (default: auto)"
+    ),
+    quiet: Quiet = False,
+):
+    """Forecast observing plans from a fit's posterior: future catalogues simulated at its draws,
+    fitted on a Dask cluster; ln B, interval widths and binary fraction per plan."""
+    from halo.batch.forecast import parse_plan
+    from halo.batch.forecast_report import format_forecast, run_forecast
+    from halo.cli.batch_commands import check_cluster_options, fit_settings
+
+    check_cluster_options(scheduler, workers)
+    plans = [parse_plan(p) for p in plan]
+    settings = fit_settings(chains, warmup, draws, seed, binaries, foreground, None)
+    result = run_forecast(
+        folder,
+        out,
+        plans,
+        settings=settings,
+        n_draws=draws_per_plan,
+        model=model,
+        scheduler=scheduler,
+        workers=workers,
+        progress=not quiet,
+        command=_command_line(ctx, "forecast", "folder"),
+    )
+    typer.echo(format_forecast(result, out))
     if result["failed"]:
         raise typer.Exit(1)

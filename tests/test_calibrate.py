@@ -4,14 +4,13 @@ on a real Dask LocalCluster (2 workers): the files, ranks in 0..L that equal tho
 each fit's posterior.nc, the uniformity p-values recomputed with scipy, and the false-dark-matter
 fields of a stars-only calibration."""
 
-import contextlib
-import io
 import json
 
 import arviz as az
 import numpy as np
 import pytest
 from astropy.table import Table
+from sbc_setup import run_cli
 from scipy import stats
 
 from halo.batch.sbc import SbcDesign, calibration_satellite, prior_draws, write_mocks
@@ -23,13 +22,6 @@ from halo.pipeline.demo import demo_satellite_path
 # 2 chains x (50 + 50): 100 draws, thinned to L = 99 (the fewest the fit allows)
 TINY = ["--chains", "2", "--warmup", "50", "--draws", "50", "--workers", "2", "--quiet"]
 L = 99
-
-
-def _run(args):
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = main(args)
-    return code, out.getvalue(), err.getvalue()
 
 
 @pytest.fixture(scope="module")
@@ -87,11 +79,11 @@ def test_truths_are_the_mock_generators_own(tmp_path):
 
 
 @pytest.fixture(scope="module")
-def nfw_run(tmp_path_factory):
+def nfwrun_cli(tmp_path_factory):
     out = tmp_path_factory.mktemp("sbc") / "nfw"
     args = ["calibrate", "nfw", "--out", str(out), "--mocks", "4", "--stars", "30", "--seed", "2"]
     args += ["--v-sys-prior", "87,5", "--foreground-max", "0", "--no-foreground", *TINY]
-    code, stdout, stderr = _run(args)
+    code, stdout, stderr = run_cli(args)
     return out, code, stdout, stderr
 
 
@@ -138,7 +130,7 @@ def test_a_rerun_fits_nothing_again(nfw_run):
     stamps = sorted(p.stat().st_mtime_ns for p in (out / "fits").glob("*/summary.json"))
     args = ["calibrate", "nfw", "--out", str(out), "--mocks", "4", "--stars", "30", "--seed", "2"]
     args += ["--v-sys-prior", "87,5", "--foreground-max", "0", "--no-foreground", *TINY]
-    code, stdout, stderr = _run(args)
+    code, stdout, stderr = run_cli(args)
     assert code == 0, stderr
     assert stamps == sorted(p.stat().st_mtime_ns for p in (out / "fits").glob("*/summary.json"))
 
@@ -147,7 +139,7 @@ def test_false_dark_matter_of_a_stars_only_calibration(tmp_path):
     out = tmp_path / "so"
     args = ["calibrate", "stars-only", "--out", str(out), "--mocks", "2", "--stars", "30"]
     args += ["--model", "nfw", "--v-sys-prior", "87,5", "--foreground-max", "0"]
-    code, stdout, stderr = _run([*args, "--no-foreground", "--no-binaries", *TINY])
+    code, stdout, stderr = run_cli([*args, "--no-foreground", "--no-binaries", *TINY])
     assert code == 0, stdout + stderr
     res = json.loads((out / "calibration.json").read_text())
     assert res["fit_models"] == ["nfw", "stars-only"] and res["ranked_model"] == "stars-only"

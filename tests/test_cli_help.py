@@ -14,7 +14,7 @@ import typer
 from halo.cli.app import app, main
 
 COMMANDS = ["demo", "fit", "mock", "predict", "models", "init", "add", "refit", "status"]
-COMMANDS += ["history", "export", "batch", "calibrate"]
+COMMANDS += ["history", "export", "batch", "calibrate", "forecast"]
 
 # options whose value has a unit, and the unit as its help text states it
 UNITS = {

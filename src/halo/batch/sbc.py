@@ -42,6 +42,7 @@ __all__ = [
     "SbcDesign",
     "prior_draws",
     "calibration_satellite",
+    "satellite_toml",
     "write_mocks",
     "MOCK_FOLDER",
     "MANIFEST_NAME",
@@ -133,6 +134,16 @@ def _toml_value(v):
     return json.dumps(v)
 
 
+def satellite_toml(d):
+    """A satellite file's TOML text of its keys ``d`` (``Satellite.as_dict()``)."""
+    d = dict(d)
+    fg = d.pop("foreground", None)
+    lines = [f"{k} = {_toml_value(v)}" for k, v in d.items()]
+    for comp in fg or ():
+        lines += ["", "[[foreground]]"] + [f"{k} = {_toml_value(v)}" for k, v in comp.items()]
+    return "\n".join(lines) + "\n"
+
+
 def calibration_satellite(path, v_sys_prior=(0.0, 10.0)):
     """(Satellite, TOML text) of the calibration's copy of satellite file ``path``: the file's
     keys, plus ``v_sys_kms``/``v_sys_err_kms`` = ``v_sys_prior`` when it has no v_sys prior."""
@@ -145,11 +156,7 @@ def calibration_satellite(path, v_sys_prior=(0.0, 10.0)):
                 f"--v-sys-prior: expected MEAN,SIGMA with SIGMA > 0 [km/s], got {v_sys_prior!r}"
             )
         d["v_sys_kms"], d["v_sys_err_kms"] = mean, sigma
-    fg = d.pop("foreground", None)
-    lines = [f"{k} = {_toml_value(v)}" for k, v in d.items()]
-    for comp in fg or ():
-        lines += ["", "[[foreground]]"] + [f"{k} = {_toml_value(v)}" for k, v in comp.items()]
-    text = "\n".join(lines) + "\n"
+    text = satellite_toml(d)
     import tomllib
 
     return parse_satellite(tomllib.loads(text), source=str(path)), text

@@ -85,6 +85,19 @@ def _result(design, stats, rows, extra):
     }
 
 
+def _write_outputs(out_dir, result, ranked, design, models_run):
+    """calibration.json, calibration.ecsv and rank_histograms.png."""
+    keys, rows, stats = ranked
+    write_json(out_dir / CALIBRATION_JSON, _clean(result))
+    fdm_models = [m for m in models_run if m != design.spec_name]
+    write_ecsv(
+        out_dir / CALIBRATION_ECSV,
+        _ecsv(rows, keys, fdm_models if not design.spec.has_dark else []),
+    )
+    title = f"SBC of '{design.spec.name}': {result['n_done']} mocks of {design.n_stars} stars"
+    rank_figure(out_dir / FIGURE, stats, result["n_rank_draws"], result["n_bins"], title)
+
+
 def run_calibration(
     design,
     satellite_path,
@@ -109,11 +122,7 @@ def run_calibration(
     _check_draws(settings, n_keep, n_bins)
     out_dir = _check_out_dir(Path(out_dir))
     models_run, ranked = fit_models(design, models)
-    if progress:
-        print(
-            f"calibrate: drawing {design.n_mocks} truths from the prior and their mocks",
-            file=sys.stderr,
-        )
+    _say(progress, f"calibrate: drawing {design.n_mocks} truths from the prior and their mocks")
     manifest, sat, truths = write_mocks(
         design, satellite_path, out_dir, models_run, v_sys_prior=v_sys_prior
     )
@@ -126,8 +135,7 @@ def run_calibration(
         models=models_run,
         progress=progress,
     )
-    if progress:
-        print("calibrate: ranking the truths among the posterior draws", file=sys.stderr)
+    _say(progress, "calibrate: ranking the truths among the posterior draws")
     keys, rows = collect_ranks(
         design.spec,
         sat,
@@ -150,15 +158,13 @@ def run_calibration(
         "batch_wall_time_s": outcome.wall_time_s,
     }
     result = _result(design, stats, rows, extra)
-    write_json(out_dir / CALIBRATION_JSON, _clean(result))
-    fdm_models = [m for m in models_run if m != design.spec_name]
-    write_ecsv(
-        out_dir / CALIBRATION_ECSV,
-        _ecsv(rows, keys, fdm_models if not design.spec.has_dark else []),
-    )
-    title = f"SBC of '{design.spec.name}': {result['n_done']} mocks of {design.n_stars} stars"
-    rank_figure(out_dir / FIGURE, stats, n_keep, n_bins, title)
+    _write_outputs(out_dir, result, (keys, rows, stats), design, models_run)
     return result
+
+
+def _say(progress, text):
+    if progress:
+        print(text, file=sys.stderr)
 
 
 def _clean(obj):
