@@ -133,6 +133,8 @@ class StarData:
     warnings: tuple = ()
     feh: np.ndarray | None = None
     feh_err: np.ndarray | None = None
+    epoch_feh: np.ndarray | None = None
+    epoch_feh_err: np.ndarray | None = None
 
     @property
     def n_stars(self):
@@ -287,6 +289,9 @@ def stars_from_table(
         epoch_row=key + 1,
         feh=fe.feh,
         feh_err=fe.feh_err,
+        # the rows' own [Fe/H] as given (NaN: not measured), in epoch order like epoch_v
+        epoch_feh=values["feh"][key] if "feh" in values else None,
+        epoch_feh_err=values["feh_err"][key] if "feh" in values else None,
     )
     for a in arrays.values():
         if a is not None:

@@ -1,7 +1,8 @@
 """Catalogue versions of a workspace: whole tables in a canonical form, stored under the hash of
 their content, each batch of stars and epochs merged into the latest version.
 
-A version is a table (id, ra, dec, vlos, vlos_err, mjd[, member_prob]) in a canonical form (rows
+A version is a table (id, ra, dec, vlos, vlos_err, mjd[, member_prob][, feh, feh_err]) in a
+canonical form (rows
 sorted by id and epoch, fixed column order and units), so the same content always gets the same
 hash and adding the same file twice changes nothing. A new measurement of a star at an epoch
 already recorded with a different value is refused unless ``replace`` is asked; the old version
@@ -27,9 +28,11 @@ __all__ = [
     "rows_from_stars",
 ]
 
-COLUMNS = ("id", "ra", "dec", "vlos", "vlos_err", "mjd", "member_prob")
+COLUMNS = ("id", "ra", "dec", "vlos", "vlos_err", "mjd", "member_prob", "feh", "feh_err")
 #: columns compared when a row of a new batch matches one of the workspace
-_COMPARED = ("ra", "dec", "vlos", "vlos_err", "member_prob")
+_COMPARED = ("ra", "dec", "vlos", "vlos_err", "member_prob", "feh", "feh_err")
+#: float columns, written with every digit
+_FLOATS = ("ra", "dec", "vlos", "vlos_err", "mjd", "member_prob", "feh", "feh_err")
 _INTEGRAL_FLOAT = re.compile(r"^([+-]?\d+)\.0*$")
 
 
@@ -54,6 +57,9 @@ def rows_from_stars(stars):
     }
     if stars.member_prob is not None:
         rows["member_prob"] = np.asarray(stars.member_prob, dtype=float)[es]
+    if getattr(stars, "epoch_feh", None) is not None:  # the rows' [Fe/H] as given (NaN: none)
+        rows["feh"] = np.asarray(stars.epoch_feh, dtype=float)
+        rows["feh_err"] = np.asarray(stars.epoch_feh_err, dtype=float)
     return rows
 
 
@@ -73,11 +79,11 @@ def canonical_bytes(rows):
     for c in COLUMNS:
         if c not in rows:
             continue
-        if c == "mjd" and np.all(np.isnan(rows["mjd"])):
+        if c in ("mjd", "feh", "feh_err") and np.all(np.isnan(rows[c])):
             continue
         col = rows[c][order]
         t[c] = col if c not in units else col * units[c]
-    for c in ("ra", "dec", "vlos", "vlos_err", "mjd", "member_prob"):
+    for c in _FLOATS:
         if c in t.colnames:
             t[c].info.format = ".17g"
     t.meta.clear()
@@ -93,15 +99,16 @@ def read_rows(path):
     t = Table.read(path, format="ascii.ecsv")
     rows = {c: np.asarray(t[c]) for c in t.colnames}
     rows["id"] = canonical_ids(rows["id"])
-    for c in ("ra", "dec", "vlos", "vlos_err", "member_prob"):
+    for c in ("ra", "dec", "vlos", "vlos_err", "member_prob", "feh", "feh_err"):
         if c in rows:
-            rows[c] = rows[c].astype(float)
+            rows[c] = np.ma.filled(np.ma.asarray(rows[c], dtype=float), np.nan)
     rows["mjd"] = rows["mjd"].astype(float) if "mjd" in rows else np.full(len(t), np.nan)
     return rows
 
 
 def _same(a, b):
-    return np.isclose(a, b, rtol=1e-12, atol=1e-12)
+    # NaN = not measured ([Fe/H] of a row without one): equal to NaN
+    return np.isclose(a, b, rtol=1e-12, atol=1e-12, equal_nan=True)
 
 
 def _epoch_key(rows, k):
@@ -132,6 +139,10 @@ def _merge(old, new, row_no, source, latest_seq, replace):
     ``replace``; ``row_no`` are the batch rows' 1-based file rows.
     """
     _same_columns(old, new, source)
+    for c in ("feh", "feh_err"):  # a batch without [Fe/H] keeps the workspace's, and back
+        for a, b in ((old, new), (new, old)):
+            if c in a and c not in b:
+                b[c] = np.full(len(b["id"]), np.nan)
     index = {_epoch_key(old, k): k for k in range(len(old["id"]))}
     keep_new = np.zeros(len(new["id"]), dtype=bool)
     replace_old = []
