@@ -128,7 +128,8 @@ def _write_outputs(out_dir, summary, results, stars, satellite, ctx):
     summary["stage_times_s"] = {
         "before_models": ctx["t_models"] - ctx["t_start"],
         "models": {n: r["time_s"] for n, r in results.items()},
-        "summary": t0 - ctx["t_summary"],
+        "summary": t0 - ctx["t_summary"] - ctx["nature_s"],
+        "nature": ctx["nature_s"],
         "figures": time.perf_counter() - t0,
     }
     write_summary_table(summary, out_dir / "summary.ecsv")
@@ -181,8 +182,10 @@ def fit(
         stars, satellite, settings, (fg_on, fg_reason), results, specs, satellite_path
     )
     summary["comparison"] = clean(shared_settings(specs, settings, (fg_on, fg_reason), satellite))
+    t_nature = time.perf_counter()
     nature = nature_section(stars, satellite, results, specs, settings, summary["models"])
     summary["nature"] = clean(nature)
+    ctx["nature_s"] = time.perf_counter() - t_nature
     if not summary["dispersion"]["resolved"]:
         say("WARNING: " + summary["dispersion"]["message"], settings)
     interrupt.check()
