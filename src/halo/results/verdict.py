@@ -133,8 +133,8 @@ def _bayes(m, state):
         "words": c.get("verdict"),
     }
     err = out["ln_bayes_factor_err"]
-    pm = "" if err is None else f" +- {err:.1f}"
-    return out, f"ln B = {ln_b:+.1f}{pm}: {c.get('verdict')} [{state}]"
+    pm = "" if err is None else f" +- {err:.2f}"
+    return out, f"ln B = {ln_b:+.2f}{pm}: {c.get('verdict')} [{state}]"
 
 
 def _binary_flag(summary, dark, fraction_range, state):
