@@ -79,7 +79,7 @@ def test_truths_are_the_mock_generators_own(tmp_path):
 
 
 @pytest.fixture(scope="module")
-def nfwrun_cli(tmp_path_factory):
+def nfw_run(tmp_path_factory):
     out = tmp_path_factory.mktemp("sbc") / "nfw"
     args = ["calibrate", "nfw", "--out", str(out), "--mocks", "4", "--stars", "30", "--seed", "2"]
     args += ["--v-sys-prior", "87,5", "--foreground-max", "0", "--no-foreground", *TINY]

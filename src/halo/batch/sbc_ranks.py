@@ -84,7 +84,6 @@ def collect_ranks(spec, satellite, truths, records, fits_dir, model, n_keep, bin
     convergence and ln B of every dark model fitted. Returns (keys, rows) in mock order; a mock
     whose fit failed has ``status`` "failed" and no ranks."""
     keys = quantities_of(spec, binaries)
-    dark_models = [m for m in records[0].get("models", {}) if m != STARS_ONLY] if records else []
     truth_draws = {
         k: np.array([t["prior_draw"][k] for t in truths]) for k in truths[0]["prior_draw"]
     }
@@ -103,7 +102,7 @@ def collect_ranks(spec, satellite, truths, records, fits_dir, model, n_keep, bin
                 k: int(sbc_ranks([row["truth"][k]], draws[k][None, :])[0]) for k in keys
             }
             row["converged"] = bool(rec.get("converged"))
-            row["ln_b"] = _ln_b(rec, [m for m in dark_models if m in (rec.get("models") or {})])
+            row["ln_b"] = _ln_b(rec, [m for m in rec.get("models") or {} if m != STARS_ONLY])
         rows.append(row)
     return keys, rows
 
