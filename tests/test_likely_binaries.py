@@ -108,3 +108,26 @@ def test_estimators_keep_the_likely_single_members(binary_mock):
     est = estimators(stars, sat, None, binary_bayes_factor(res))
     assert est["n_stars_used"] >= stars.n_stars - is_binary.sum()
     assert "Bayes factor" in est["selection"]
+
+
+def test_probabilities_of_the_padded_program_equal_the_catalogue_s_own(binary_mock):
+    # star_probabilities runs the catalogue padded to its bucket as an argument of one compiled
+    # program (catalogues of similar size share it); cut back to the real stars, the numbers
+    # must be those of the model run on the catalogue as given, draw by draw
+    from halo.results.members import _probabilities_of_draw
+
+    stars, sat, res, _, _ = binary_mock
+    spec = load_spec("stars-only")
+    binaries, data, _ = Likelihoods(stars, FitSettings(progress=False), False).get(spec)
+    terms = make_model(spec, sat, data, binaries=binaries, keep_terms=True)
+    assert len(terms.compile_args[0]["data"].v) > stars.n_stars  # padded: 70 stars -> 128
+    draws = {k: np.asarray(v, dtype=float).copy() for k, v in res["samples"].items()}
+    draws["f_binary"] = np.linspace(0.2, 0.8, len(draws["f_binary"]))
+    one = _probabilities_of_draw(terms)
+    ref = np.mean(
+        [one({k: v[i] for k, v in draws.items()})["p_binary"] for i in range(len(draws["v_sys"]))],
+        axis=0,
+    )
+    got = star_probabilities(terms, draws, list(draws))["binary_prob"]
+    assert got.shape == (stars.n_stars,)
+    np.testing.assert_allclose(got, ref, rtol=1e-12, atol=1e-14)

@@ -37,9 +37,9 @@ def _probabilities_of_draw(terms_model):
     import jax.numpy as jnp
     from numpyro import handlers
 
-    def one(params):
+    def one(params, model_args=()):
         tr = handlers.trace(handlers.substitute(handlers.seed(terms_model, 0), data=params))
-        t = tr.get_trace()
+        t = tr.get_trace(*model_args)
         out = {k: t[k]["value"] for k in _TERM_SITES if k in t}
         if "ll_binary" in out:
             fb = params["f_binary"]
@@ -63,8 +63,17 @@ def star_probabilities(terms_model, samples, latent, batch=256):
     f_b L_binary / ((1 - f_b) L_single + f_b L_binary). Averaged over the draws. Returns a dict
     with ``member_prob`` and ``binary_prob`` (None when the part is not modelled).
     """
+    import jax
+
     sub = {key: np.asarray(samples[key]) for key in latent}
-    per_draw = map_draws(_probabilities_of_draw(terms_model), sub, batch=batch)
+    one = _probabilities_of_draw(terms_model)
+    # the catalogue padded to its bucket goes in as an argument of the compiled program (as in
+    # the sampler), so catalogues of similar size share it; the padded stars are cut off after
+    args = getattr(terms_model, "compile_args", ())
+    vmapped = jax.jit(jax.vmap(one, in_axes=(0, None)))
+    per_draw = map_draws(one, sub, batch=batch, compiled=lambda part: vmapped(part, args))
+    n_real = getattr(terms_model, "n_stars", None)
+    per_draw = {k: v[:, :n_real] if n_real is not None else v for k, v in per_draw.items()}
     n = len(next(iter(samples.values())))
     means = {}
     for key, val in per_draw.items():
