@@ -241,6 +241,14 @@ def read_catalogue(path, satellite, columns=None, **kwargs):
     )
 
 
+def _epoch_feh(values, key):
+    """The rows' own [Fe/H] and error as given (NaN: not measured), in epoch order like
+    epoch_v; None without the columns."""
+    if "feh" not in values:
+        return {"epoch_feh": None, "epoch_feh_err": None}
+    return {"epoch_feh": values["feh"][key], "epoch_feh_err": values["feh_err"][key]}
+
+
 def stars_from_table(
     table,
     satellite,
@@ -289,9 +297,7 @@ def stars_from_table(
         epoch_row=key + 1,
         feh=fe.feh,
         feh_err=fe.feh_err,
-        # the rows' own [Fe/H] as given (NaN: not measured), in epoch order like epoch_v
-        epoch_feh=values["feh"][key] if "feh" in values else None,
-        epoch_feh_err=values["feh_err"][key] if "feh" in values else None,
+        **_epoch_feh(values, key),
     )
     for a in arrays.values():
         if a is not None:
