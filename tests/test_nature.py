@@ -165,6 +165,7 @@ def test_halo_fit_writes_the_nature_section(tmp_path):
         ({"age_err_gyr": 1.0}, "age_err_gyr' needs 'age_gyr"),
         ({"pm_ra_cosdec_masyr": 300.0, "pm_dec_masyr": 0.0}, "pm_ra_cosdec_masyr' must be between"),
         ({"age_gyr": 10.0, "age_err_gyr": -1.0}, "age_err_gyr' must be non-negative"),
+        ({"milky_way_model": "spiral9"}, "milky_way_model' must be one of bovy2015"),
     ],
 )
 def test_satellite_keys_of_the_orbit_are_checked(tmp_path, capsys, extra, key):
@@ -174,3 +175,15 @@ def test_satellite_keys_of_the_orbit_are_checked(tmp_path, capsys, extra, key):
     assert main(fit_command(cat, sat_file, tmp_path / "run")) == 2
     err = capsys.readouterr().err
     assert key in err and "sat.toml" in err and "Traceback" not in err
+
+
+def test_satellite_file_chooses_the_milky_way_model():
+    # the flat rotation curve's enclosed mass: M(<r) = v_c^2 r / G (Binney & Tremaine 2008,
+    # singular isothermal sphere), v_c = 220 km/s at the fixed galactocentric distance of 15 kpc
+    sat = _satellite(3e5, 4.0, 15.0, 12.0, milky_way_model="Isothermal220")
+    assert sat.milky_way_model == "isothermal220"
+    mw = _nature(sat, {STARS_ONLY: _draws(sat)})["tides"]["milky_way"]
+    assert mw["model"] == "isothermal220", mw
+    mass = mw["enclosed_mass_msun"]
+    m = mass["median"] if isinstance(mass, dict) else mass
+    assert m == pytest.approx(220.0**2 * 15.0 / G, rel=1e-3)

@@ -18,6 +18,7 @@ from halo.core import vocabulary
 from halo.core.errors import InputError
 from halo.core.fileio import read_input_text
 from halo.physics.light import LIGHT_PROFILES
+from halo.physics.milky_way import MILKY_WAY_MODELS
 
 __all__ = ["Satellite", "read_satellite", "parse_satellite"]
 
@@ -53,6 +54,7 @@ _KEYS = {
     "pm_ra_cosdec_err_masyr": (float, False, _NONNEG),
     "pm_dec_masyr": (float, False, _PM),
     "pm_dec_err_masyr": (float, False, _NONNEG),
+    "milky_way_model": (str, False, None),
     "foreground": (list, False, None),
     "v_sys_kms": (float, False, ("between -2000 and 2000", lambda v: -2000 < v < 2000)),
     "v_sys_err_kms": (float, False, _NONNEG),
@@ -86,6 +88,7 @@ class Satellite:
     pm_ra_cosdec_err_masyr: float | None = None
     pm_dec_masyr: float | None = None
     pm_dec_err_masyr: float | None = None
+    milky_way_model: str | None = None  # None: the default (halo.physics.milky_way)
     foreground: tuple | None = None
     v_sys_kms: float | None = None
     v_sys_err_kms: float | None = None
@@ -244,6 +247,14 @@ def parse_satellite(data, source="<memory>"):
             if not ok(v):
                 raise InputError(f"{where} key '{key}' must be {text}, got {v!r}")
         values[key] = v
+    if "milky_way_model" in values:
+        mw = values["milky_way_model"].lower()
+        if mw not in MILKY_WAY_MODELS:
+            raise InputError(
+                f"{where} key 'milky_way_model' must be one of {', '.join(MILKY_WAY_MODELS)}, "
+                f"got {values['milky_way_model']!r}"
+            )
+        values["milky_way_model"] = mw
     prof = values.get("light_profile", "plummer")
     if prof not in LIGHT_PROFILES:
         raise InputError(

@@ -179,7 +179,8 @@ def nature_section(stars, satellite, results, specs, settings, models_summary=No
     ``results``/``specs``: {model name: result / spec} of the fit, stars-only among them;
     ``settings``: the fit settings (their seed; progress lines on stderr when they ask for
     progress) or an int seed; ``models_summary``: summary.json ``models`` (for the dynamics
-    line); ``options``: ``milky_way`` (a Milky Way model name).
+    line); ``options``: ``milky_way`` (a Milky Way model name; else the satellite file's
+    ``milky_way_model``, else the default).
     """
     seed, progress = _seed_and_progress(settings)
     rng = np.random.default_rng([seed, 12])
@@ -187,7 +188,7 @@ def nature_section(stars, satellite, results, specs, settings, models_summary=No
         satellite,
         results[STARS_ONLY]["samples"],
         rng,
-        model=options.get("milky_way"),
+        model=options.get("milky_way") or getattr(satellite, "milky_way_model", None),
         progress=progress,
     )
     ref = next((n for n in specs if n != STARS_ONLY), STARS_ONLY)
