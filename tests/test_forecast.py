@@ -1,7 +1,7 @@
 """`halo forecast` through the CLI: a tiny fit of a mock, then two plans (+10 stars, a second
-epoch a year later) x 1 posterior draw fitted on a real Dask LocalCluster (2 workers): the future
-catalogues, the numbers per plan against each fit's summary.json, the decisive-plan rule, and bad
-plans refused in one line (exit 2)."""
+epoch a year later) x 1 posterior draw fitted on a real Dask LocalCluster (1 worker, so that the
+second fit reuses the first one's programs): the future catalogues, the numbers per plan against
+each fit's summary.json, the decisive-plan rule, and bad plans refused in one line (exit 2)."""
 
 import json
 
@@ -35,7 +35,7 @@ def fitted(tmp_path_factory):
     assert code == 0
     out = root / "fc"
     args = ["forecast", str(run), "--out", str(out), "--plan", "+10", "--plan", "epochs"]
-    args += ["--draws-per-plan", "1", "--workers", "2", *NO_EXTRAS, *TINY]
+    args += ["--draws-per-plan", "1", "--workers", "1", *NO_EXTRAS, *TINY]
     return run, out, run_cli(args)
 
 
