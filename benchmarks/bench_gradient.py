@@ -25,42 +25,9 @@ jax.config.update("jax_enable_x64", True)
 
 
 def _variants(n_stars):
-    from halo.inference.likelihood import epoch_terms
-    from halo.inference.model import Foreground, make_fit_data, make_model
-    from halo.inputs.catalogue import stars_from_table
-    from halo.inputs.satellite import read_satellite
-    from halo.inputs.spec import load_spec
-    from halo.mock.catalogue import make_mock
-    from halo.physics.binaries import load_mixture
-    from halo.physics.cosmology import rho_crit
-    from halo.physics.dark import NFW
-    from halo.pipeline.demo import demo_satellite_path
+    from bench_likelihood_cost import cost_variants
 
-    sat, spec = read_satellite(demo_satellite_path()), load_spec("nfw")
-    mock = make_mock(
-        sat,
-        NFW.from_m200_c200(1e9, 20.0, rho_c=rho_crit()),
-        n_stars=n_stars,
-        v_sys=50.0,
-        error_range_kms=(1.0, 2.0),
-        seed=7,
-        method="gaussian",
-        epochs_mjd=(60000.0, 60365.0),
-        repeat_fraction=0.35,
-        binary_fraction=0.4,
-        n_foreground=30,
-    )
-    stars = stars_from_table(mock.table, sat, source="gradient-mock")
-    mix = load_mixture()
-    ep = epoch_terms(stars, mix)
-    plain = make_fit_data(stars.v, stars.v_err, stars.radius_deg)
-    with_ep = make_fit_data(stars.v, stars.v_err, stars.radius_deg, epochs=ep)
-    return {
-        "plain": make_model(spec, sat, plain),
-        "binaries": make_model(spec, sat, with_ep, binaries=mix),
-        "foreground": make_model(spec, sat, plain, foreground=Foreground()),
-        "both": make_model(spec, sat, with_ep, binaries=mix, foreground=Foreground()),
-    }
+    return cost_variants(n_stars)[2]
 
 
 def cpu_per_gradient(model, repeat):

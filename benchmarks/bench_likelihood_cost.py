@@ -49,19 +49,16 @@ def run(model, kw):
     return full, sample, steps
 
 
-def main():
-    ap = argparse.ArgumentParser()
-    ap.add_argument("--chains", type=int, default=4)
-    ap.add_argument("--warmup", type=int, default=1000)
-    ap.add_argument("--draws", type=int, default=1000)
-    args = ap.parse_args()
+def cost_variants(n_stars=100):
+    """The mock (n_stars members of the demo satellite, NFW halo) and the shipped `nfw` spec
+    fitted four ways: (stars, orbit Monte Carlo time [s], {variant: model})."""
     sat = read_satellite(demo_satellite_path())
     spec = load_spec("nfw")
     dark = NFW.from_m200_c200(1e9, 20.0, rho_c=rho_crit())
     mock = make_mock(
         sat,
         dark,
-        n_stars=100,
+        n_stars=n_stars,
         v_sys=50.0,
         error_range_kms=(1.0, 2.0),
         seed=7,
@@ -72,7 +69,6 @@ def main():
         n_foreground=30,
     )
     stars = stars_from_table(mock.table, sat, source="cost-mock")
-    kw = dict(chains=args.chains, warmup=args.warmup, draws=args.draws, seed=1, progress=False)
     mix = load_mixture()
     t0 = time.perf_counter()
     ep = epoch_terms(stars, mix)
@@ -85,6 +81,17 @@ def main():
         "foreground": make_model(spec, sat, plain, foreground=Foreground()),
         "both": make_model(spec, sat, with_ep, binaries=mix, foreground=Foreground()),
     }
+    return stars, t_prep, variants
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--chains", type=int, default=4)
+    ap.add_argument("--warmup", type=int, default=1000)
+    ap.add_argument("--draws", type=int, default=1000)
+    args = ap.parse_args()
+    kw = dict(chains=args.chains, warmup=args.warmup, draws=args.draws, seed=1, progress=False)
+    stars, t_prep, variants = cost_variants()
     print(
         f"{stars.n_stars} stars ({int(np.sum(stars.n_epochs > 1))} with two epochs); "
         f"{args.chains} chains x ({args.warmup} + {args.draws}); orbit Monte Carlo for the "
