@@ -4,7 +4,7 @@ from typing import Annotated
 
 import typer
 
-from halo.cli.options import Anisotropy, Draws, Models, Quiet, Seed, Warmup
+from halo.cli.options import Anisotropy, Draws, Models, Quiet, Seed, TidalTruncation, Warmup
 
 __all__ = ["batch_cmd", "check_cluster_options", "fit_settings"]
 
@@ -31,7 +31,9 @@ def check_cluster_options(scheduler, workers):
         fail(f"--workers: expected a positive number of workers, got {workers!r}")
 
 
-def fit_settings(chains, warmup, draws, seed, binaries, foreground, anisotropy):
+def fit_settings(
+    chains, warmup, draws, seed, binaries, foreground, anisotropy, tidal_truncation=True
+):
     """The FitSettings of the command line's fit options (no progress inside a batch)."""
     from halo.pipeline.fit import FitSettings
 
@@ -44,6 +46,7 @@ def fit_settings(chains, warmup, draws, seed, binaries, foreground, anisotropy):
         binaries=binaries,
         foreground="auto" if foreground is None else foreground,
         anisotropy=anisotropy,
+        tidal_truncation=tidal_truncation,
     )
 
 
@@ -73,6 +76,7 @@ def batch_cmd(
         "catalogue (entries may set their own)",
     ),
     anisotropy: Anisotropy = None,
+    tidal_truncation: TidalTruncation = True,
     quiet: Quiet = False,
 ):
     """Fit every entry of a manifest, each one task on a Dask cluster; reruns skip finished
@@ -81,7 +85,9 @@ def batch_cmd(
     from halo.pipeline.fit import DEFAULT_MODELS
 
     check_cluster_options(scheduler, workers)
-    settings = fit_settings(chains, warmup, draws, seed, binaries, foreground, anisotropy)
+    settings = fit_settings(
+        chains, warmup, draws, seed, binaries, foreground, anisotropy, tidal_truncation
+    )
     outcome = run_batch(
         manifest,
         out,

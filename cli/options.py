@@ -24,6 +24,8 @@ __all__ = [
     "SetValues",
     "Columns",
     "Anisotropy",
+    "TidalTruncation",
+    "TIDAL_TRUNCATION_HELP",
     "Warmup",
     "Draws",
     "Seed",
@@ -50,6 +52,14 @@ Columns = Annotated[
 ]
 Anisotropy = Annotated[
     str | None, typer.Option("--anisotropy", metavar="KIND", help=ANISOTROPY_HELP)
+]
+TIDAL_TRUNCATION_HELP = (
+    "J and D of dark haloes truncated at each posterior draw's own Jacobi radius in the Milky "
+    "Way model (on by default); off: untruncated haloes, as every output then says"
+)
+TidalTruncation = Annotated[
+    bool,
+    typer.Option("--tidal-truncation/--no-tidal-truncation", help=TIDAL_TRUNCATION_HELP),
 ]
 Warmup = Annotated[int, typer.Option("--warmup", metavar="N", help="warmup steps per chain")]
 Draws = Annotated[int, typer.Option("--draws", metavar="N", help="kept draws per chain")]

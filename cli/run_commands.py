@@ -17,6 +17,7 @@ from halo.cli.options import (
     Satellite,
     Seed,
     SetValues,
+    TidalTruncation,
     Warmup,
     check_out_dir,
     fail,
@@ -125,6 +126,7 @@ def fit_cmd(
         "catalogue reaches beyond the members (member_prob column or far velocity outliers)",
     ),
     anisotropy: Anisotropy = None,
+    tidal_truncation: TidalTruncation = True,
     quiet: Quiet = False,
 ):
     """Fit the models to a catalogue and compare each with stars alone."""
@@ -142,6 +144,7 @@ def fit_cmd(
         binaries=binaries,
         foreground="auto" if foreground is None else foreground,
         anisotropy=anisotropy,
+        tidal_truncation=tidal_truncation,
     )
     out_dir = check_out_dir(out, overwrite)
     models = list(model) if model else list(DEFAULT_MODELS)

@@ -99,6 +99,11 @@ def refit_cmd(
     model: RefitModels = None,
     satellite: str = typer.Option(None, "--satellite", metavar="FILE", help=_SATELLITE_HELP),
     anisotropy: RefitAnisotropy = None,
+    tidal_truncation: bool | None = typer.Option(
+        None,
+        "--tidal-truncation/--no-tidal-truncation",
+        help="J and D truncated at each draw's Jacobi radius (default: as last run, on)",
+    ),
     quiet: Quiet = False,
 ):
     """Fit what changed since the last run (unchanged models are reused, others warm-started).
@@ -123,6 +128,7 @@ def refit_cmd(
         binaries=binaries,
         foreground=foreground,
         anisotropy=anisotropy,
+        tidal_truncation=tidal_truncation,
         progress=not quiet,
     )
 

@@ -13,6 +13,7 @@ __all__ = [
     "ANGLE_2RH",
     "ANGLE_2RH_CONVENTION",
     "HALO_TRUNCATION",
+    "jacobi_truncation_text",
     "JD_CONVENTIONS",
     "angle_key",
     "angle_keys",
@@ -52,14 +53,27 @@ ANGLE_2RH_CONVENTION = (
     "posterior draw with its own R_e and distance"
 )
 
-#: the dark haloes whose J and D are reported are not tidally truncated (yet)
+#: the statement of untruncated haloes: ``halo predict``, and fits run with
+#: --no-tidal-truncation or without a tidal field (a fit states its own choice per run,
+#: summary.json ``jd_conventions.halo_truncation``, see halo.results.truncation)
 HALO_TRUNCATION = (
     "J and D are computed for untruncated dark haloes: no tidal radius, the line-of-sight "
     "integrals run to infinity. A tidally truncated halo gives lower values, most at wide angles "
     "and for D."
 )
 
-#: the conventions written beside every J and D output (summary.json, tables, FITS, report)
+
+def jacobi_truncation_text(milky_way_model, judged_at):
+    """The statement of J and D truncated at each draw's Jacobi radius (a fit's default)."""
+    return (
+        "J and D are computed for dark haloes truncated at each posterior draw's own Jacobi "
+        "radius r_J (density zero beyond r_J; r_J = (G M(<r_J) / (Omega^2 - d2Phi/dr2))^(1/3), "
+        f"Binney & Tremaine 2008 section 8.3) in the Milky Way model {milky_way_model}, tides "
+        f"judged at the {judged_at}; *_untruncated: the same draws without truncation."
+    )
+
+
+#: the conventions of untruncated J and D (``halo predict``; a fit writes its own statement)
 JD_CONVENTIONS = {"2rh": ANGLE_2RH_CONVENTION, "halo_truncation": HALO_TRUNCATION}
 
 

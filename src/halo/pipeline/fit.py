@@ -183,7 +183,9 @@ def fit(
     )
     summary["comparison"] = clean(shared_settings(specs, settings, (fg_on, fg_reason), satellite))
     t_nature = time.perf_counter()
-    nature = nature_section(stars, satellite, results, specs, settings, summary["models"])
+    nature = nature_section(
+        stars, satellite, results, specs, settings, summary["models"], tides=ctx.get("tides")
+    )
     summary["nature"] = clean(nature)
     ctx["nature_s"] = time.perf_counter() - t_nature
     if not summary["dispersion"]["resolved"]:

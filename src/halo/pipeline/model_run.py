@@ -1,7 +1,6 @@
 """One model of a fit: sample it (fresh or warm-started) or reuse an earlier posterior, then its
 evidence, LOO, per-star probabilities and derived quantities; writes ``<model>/posterior.nc``."""
 
-import shutil
 import time
 import warnings
 from types import SimpleNamespace
@@ -17,6 +16,7 @@ from halo.pipeline.warm_start import warm_start
 from halo.products.rundir import load_posterior, posterior_path, read_summary
 from halo.results.derived import derive
 from halo.results.members import star_probabilities
+from halo.results.truncation import derived_group, model_tides, shared_tides, truncation_entry
 
 __all__ = ["latent_sites", "run_model"]
 
@@ -30,14 +30,14 @@ def latent_sites(model):
 
 
 def _reuse(name, reuse, out_dir, settings):
-    """(idata, samples, evidence) of model ``name`` from the earlier folder ``reuse``; its
-    posterior file is copied into ``out_dir``."""
+    """(idata, samples, evidence) of model ``name`` from the earlier folder ``reuse`` (its
+    posterior file is written anew into ``out_dir`` by :func:`run_model`, with this run's
+    ``derived`` group)."""
     say(f"[{name}] unchanged inputs: reusing the posterior of {reuse}", settings)
     idata, samples = load_posterior(reuse, name)
+    idata = idata.load() if hasattr(idata, "load") else idata  # the earlier file is closed
     prev = read_summary(reuse)["models"][name]
     ev = SimpleNamespace(**{k: prev["evidence"][k] for k in ("log_z", "log_z_err")})
-    with atomic_path(posterior_path(out_dir, name)) as tmp:
-        shutil.copyfile(posterior_path(reuse, name), tmp)
     return idata, samples, ev
 
 
@@ -109,6 +109,36 @@ def _star_probabilities(spec, satellite, data, binaries, foreground, samples, la
     return star_probabilities(terms_model, samples, latent)
 
 
+def _derived(name, spec, ctx, samples):
+    """(derived quantities, jd_truncation entry) of one model: each draw paired with a draw of
+    the fit's tidal field (:mod:`halo.results.truncation`), J and D truncated at its Jacobi
+    radius unless the settings switch it off."""
+    settings = ctx["settings"]
+    progress = (lambda m: say(m, settings)) if settings.progress else None
+    tides = shared_tides(ctx, ctx["satellite"], samples, settings, progress)
+    truncate = getattr(settings, "tidal_truncation", True)
+    n = len(np.asarray(samples["distance"]).ravel())
+    per_draw, pair = model_tides(tides, name, n, truncate)
+    say(f"[{name}] derived quantities", settings)
+    rng = np.random.default_rng(settings.seed)
+    der = derive(
+        spec, ctx["satellite"], samples, sigma_angles_deg=ctx["sigma_angles"], rng=rng,
+        tides=per_draw,
+    )  # fmt: skip
+    if pair is not None:
+        der["tidal_pair"] = pair
+    return der, truncation_entry(tides, truncate, der)
+
+
+def _write_posterior(idata, der, jd_trunc, path):
+    """posterior.nc: the sampler's groups and the ``derived`` group (r_J per draw)."""
+    group = derived_group(der, idata["posterior"].sizes["chain"], jd_trunc)
+    if group is not None:
+        idata["derived"] = group
+    with atomic_path(path) as tmp:
+        idata.to_netcdf(str(tmp))
+
+
 class _StageClock:
     """Wall time per stage [s] (``laps``: stage -> seconds since the previous lap)."""
 
@@ -159,13 +189,9 @@ def run_model(name, spec, ctx, reuse=None, warm=None):
     clock.lap("loo")
     probs = _star_probabilities(spec, satellite, data, binaries, foreground, samples, latent)
     clock.lap("star_probabilities")
-    say(f"[{name}] derived quantities", settings)
-    rng = np.random.default_rng(settings.seed)
-    der = derive(spec, satellite, samples, sigma_angles_deg=ctx["sigma_angles"], rng=rng)
+    der, jd_trunc = _derived(name, spec, ctx, samples)
     clock.lap("derived")
-    if reuse is None:
-        with atomic_path(posterior_path(ctx["out_dir"], name)) as tmp:
-            idata.to_netcdf(str(tmp))
+    _write_posterior(idata, der, jd_trunc, posterior_path(ctx["out_dir"], name))
     clock.lap("posterior_file")
     return {
         "reused_from": None if reuse is None else str(reuse),
@@ -177,6 +203,7 @@ def run_model(name, spec, ctx, reuse=None, warm=None):
         "evidence": ev,
         "loo": loo,
         "derived": der,
+        "jd_truncation": jd_trunc,
         "time_s": clock.total(),
         "stage_times_s": clock.laps,
         "sampling_time_s": t_sample,

@@ -39,6 +39,8 @@ class FitSettings:
     foreground: bool | str = "auto"  # True, False or "auto" (see foreground_decision)
     n_orbits: int = DEFAULT_N_ORBITS  # Monte Carlo orbits per multi-epoch star
     anisotropy: str | None = None  # a kind replacing every spec's anisotropy; None: each its own
+    # J and D of dark haloes truncated at each draw's Jacobi radius (halo.results.truncation)
+    tidal_truncation: bool = True
 
     def __post_init__(self):
         for name, low in (("chains", MIN_CHAINS), ("warmup", MIN_WARMUP), ("draws", MIN_DRAWS)):
@@ -52,6 +54,8 @@ class FitSettings:
         out = {k: getattr(self, k) for k in keys}
         if self.anisotropy is not None:  # absent otherwise: earlier runs' settings stay equal
             out["anisotropy"] = self.anisotropy
+        if not self.tidal_truncation:  # likewise: present only when switched off
+            out["tidal_truncation"] = False
         return out
 
 

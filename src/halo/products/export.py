@@ -15,7 +15,11 @@
     OUT/summary.json             a byte copy of the run's summary
 
 Models without a dark halo (``stars-only``) are skipped. Every draw uses its own distance, so the
-distance uncertainty is propagated through the posterior.
+distance uncertainty is propagated through the posterior. Haloes are cut where the fit cut them:
+at each draw's Jacobi radius, read from ``<model>/posterior.nc``'s ``derived`` group
+(``r_jacobi_pc``), when summary.json's ``models.<m>.jd_truncation`` says so (the default), else
+untruncated (:mod:`halo.products.jd_truncation`); tables carry the untruncated values beside the
+reported ones, and every table and FITS header states which.
 
 Conventions: J(theta) = Int_cone dOmega Int_los rho^2 dl and
 D(theta) = Int_cone dOmega Int_los rho dl in a cone of half-angle theta (solid angle
@@ -83,6 +87,7 @@ from halo.core.errors import InputError
 from halo.core.fileio import atomic_path, write_ecsv
 from halo.products.jd_draws import jd_draws, needed_sites
 from halo.products.jd_tables import draws_table, export_angles, jd_rows, jd_table
+from halo.products.jd_truncation import cut_radii_kpc
 from halo.products.rundir import SUMMARY_NAME, posterior_path, read_posterior, read_run
 from halo.products.template_extent import (
     MAX_HALF_WIDTH,
@@ -113,24 +118,33 @@ def _refuse_existing(paths):
             raise InputError(f"{p}: already exists; refusing to overwrite (choose a new folder)")
 
 
-def _model_draws(run_dir, spec, name):
-    """{"chain", "draw", "distance", "r_e", "values"} of every posterior draw of a model."""
-    post = read_posterior(posterior_path(run_dir, name), needed_sites(spec))
+def _model_draws(run_dir, spec, name, summary):
+    """{"chain", "draw", "distance", "r_e", "values", "r_cut", "truncation"} of every posterior
+    draw of a model: ``r_cut`` [kpc] the fit's Jacobi radius per draw when it truncated J and D
+    (inf otherwise), ``truncation`` its summary.json ``jd_truncation`` entry."""
+    path = posterior_path(run_dir, name)
+    post = read_posterior(path, needed_sites(spec))
     n_chain, n_draw = post["distance"].shape
     chain, draw = np.meshgrid(np.arange(n_chain), np.arange(n_draw), indexing="ij")
+    r_cut, entry = cut_radii_kpc(summary, name, path, n_chain * n_draw)
     return {
         "chain": chain.ravel(),
         "draw": draw.ravel(),
         "values": parameter_values(spec, post),
         "distance": post["distance"].ravel(),
         "r_e": post["r_e_kpc"].ravel(),
+        "r_cut": r_cut,
+        "truncation": entry,
     }
 
 
 def _export_model(run_dir, name, spec, satellite, summary, angles, opts):
     """(table rows, {kind: writer}) of one model: its draws table and its two templates."""
-    draws = _model_draws(run_dir, spec, name)
-    jd = jd_draws(spec, satellite, draws["values"], draws["distance"], draws["r_e"], angles)
+    draws = _model_draws(run_dir, spec, name, summary)
+    jd = jd_draws(
+        spec, satellite, draws["values"], draws["distance"], draws["r_e"], angles,
+        r_cut=draws["r_cut"],
+    )  # fmt: skip
     table = draws_table(name, draws, jd, summary)
     writers = {"draws": lambda p, t=table: write_ecsv(p, t)}
     where = posterior_path(run_dir, name)

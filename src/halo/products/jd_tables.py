@@ -3,7 +3,12 @@ with per-row ``converged`` and ``preferred`` flags, for likelihood code) and <mo
 (log10 J and log10 D per posterior draw); the headline lines ``halo export`` prints.
 
 Column names hold no dots (``log10_j_p2_5`` for the 2.5th percentile, ``log10_j_0_1`` for the
-0.1 deg cone of a draws table), so that expression languages and SQL take them as they are."""
+0.1 deg cone of a draws table), so that expression languages and SQL take them as they are.
+
+The columns without a suffix are the reported values: J and D of the halo truncated at each
+draw's Jacobi radius when the fit truncated (its default), else untruncated; the
+``log10_*_untruncated_*`` columns beside them are the same draws untruncated (equal to the
+reported ones when nothing was cut). Meta ``halo_truncation`` and ``jd_truncation`` say which."""
 
 import math
 
@@ -21,6 +26,7 @@ from halo.core.vocabulary import (
     angle_key,
     angle_keys,
 )
+from halo.products.jd_truncation import truncation_of
 
 __all__ = [
     "export_angles",
@@ -42,10 +48,24 @@ UPPER_PERCENTILE = 95.0
 
 CONVENTIONS = (
     "J = Int dOmega Int_los rho^2 dl, D = Int dOmega Int_los rho dl in the exact cone of "
-    "half-angle half_angle_deg (no small-angle approximation), each draw at its own distance; "
-    "haloes untruncated (no tidal radius): a truncated halo gives less, most at wide angles and "
-    "for D."
+    "half-angle half_angle_deg (no small-angle approximation), each draw at its own distance."
 )
+
+
+def conventions_text(statement):
+    """meta ``conventions``: the cone conventions and the run's truncation statement."""
+    return f"{CONVENTIONS} Haloes: {statement}"
+
+
+def _set_truncation_meta(t, summary, names):
+    """meta ``halo_truncation`` (the statement), ``jd_truncation`` ({model: entry}) and
+    ``conventions``."""
+    entries = {m: truncation_of(summary, m) for m in names}
+    statement = next(iter(entries.values()))["statement"]
+    t.meta["halo_truncation"] = statement
+    t.meta["jd_truncation"] = entries
+    t.meta["conventions"] = conventions_text(statement)
+
 
 #: what the columns are for (the header's few lines)
 USAGE = [
@@ -53,6 +73,8 @@ USAGE = [
     "angle_label: half-angle in deg, or 2rh (see convention_2rh; half_angle_deg: its median).",
     "log10_*: quantiles, mean, std [dex] of log10 J, D; *_upper95: the 95% upper bound (quote "
     "it when the dispersion is not resolved); j_mean, d_mean: linear means.",
+    "log10_j, log10_d: the reported values (see halo_truncation); log10_*_untruncated_*: the "
+    "same draws without tidal truncation.",
 ]
 
 
@@ -91,19 +113,25 @@ def draws_table(name, draws, jd, summary):
     t["distance"].unit = u.kpc
     t["half_angle_2rh_deg"] = jd["angle_2rh_deg"]
     t["half_angle_2rh_deg"].unit = u.deg
-    for i, label in enumerate(jd["labels"]):
-        for kind, unit in _units():
-            col = f"log10_{kind}_{column_key(label)}"
-            t[col] = jd[f"log10_{kind}"][:, i]
-            t[col].unit = u.dex(unit)
+    if "r_cut" in draws:  # the draw's truncation radius (its Jacobi radius; inf: none)
+        t["r_cut_pc"] = np.asarray(draws["r_cut"], float) * 1e3
+        t["r_cut_pc"].unit = u.pc
+    for suffix in ("", "_untruncated"):
+        for i, label in enumerate(jd["labels"]):
+            for kind, unit in _units():
+                col = f"log10_{kind}{suffix}_{column_key(label)}"
+                t[col] = jd[f"log10_{kind}{suffix}"][:, i]
+                t[col].unit = u.dex(unit)
     t.meta["model"] = name
     t.meta["converged"] = bool(summary["models"][name]["converged"])
     t.meta["columns"] = (
-        "log10_j_<cone>, log10_d_<cone>: log10 J, D per draw; <cone> = half-angle in deg with "
-        "'_' for '.', or 2rh (the cone of half_angle_2rh_deg)"
+        "log10_j_<cone>, log10_d_<cone>: log10 J, D per draw (reported: see halo_truncation); "
+        "log10_j_untruncated_<cone>, ...: the same draw untruncated; <cone> = half-angle in deg "
+        "with '_' for '.', or 2rh (the cone of half_angle_2rh_deg); r_cut_pc: the draw's "
+        "truncation radius (inf: none)"
     )
     t.meta["catalogue_sha256"] = summary["catalogue"]["sha256"]
-    t.meta["conventions"] = CONVENTIONS
+    _set_truncation_meta(t, summary, [name])
     t.meta["convention_2rh"] = ANGLE_2RH_CONVENTION
     return t
 
@@ -132,6 +160,9 @@ def jd_rows(name, jd):
             qd, upper, mean, n = _summary_of(np.asarray(jd[f"log10_{kind}"][:, i], float))
             row[f"log10_{kind}"], row[f"{kind}_upper"], row[f"{kind}_mean"] = qd, upper, mean
             counts.append(n)
+            unc = jd.get(f"log10_{kind}_untruncated", jd[f"log10_{kind}"])
+            qd, upper, _, _ = _summary_of(np.asarray(unc[:, i], float))
+            row[f"log10_{kind}_untruncated"], row[f"{kind}_untruncated_upper"] = qd, upper
         row["n"] = min(counts)
         rows.append(row)
     return rows
@@ -171,18 +202,19 @@ def preferred_model(summary, names):
     return pool[0], rule, margin
 
 
-def _add_quantile_columns(t, rows, kind, unit):
+def _add_quantile_columns(t, rows, kind, unit, suffix=""):
     import astropy.units as u
 
     for q in QUANTILE_KEYS:
-        col = f"log10_{kind}_{column_key(q)}"
-        t[col] = np.array([r[f"log10_{kind}"][q] for r in rows], float)
+        col = f"log10_{kind}{suffix}_{column_key(q)}"
+        t[col] = np.array([r[f"log10_{kind}{suffix}"][q] for r in rows], float)
         t[col].unit = u.dex if q == "std" else u.dex(unit)
-    col = f"log10_{kind}_upper95"
-    t[col] = np.array([r[f"{kind}_upper"] for r in rows], float)
+    col = f"log10_{kind}{suffix}_upper95"
+    t[col] = np.array([r[f"{kind}{suffix}_upper"] for r in rows], float)
     t[col].unit = u.dex(unit)
-    t[f"{kind}_mean"] = np.array([r[f"{kind}_mean"] for r in rows], float)
-    t[f"{kind}_mean"].unit = unit
+    if not suffix:
+        t[f"{kind}_mean"] = np.array([r[f"{kind}_mean"] for r in rows], float)
+        t[f"{kind}_mean"].unit = unit
 
 
 def jd_table(rows, summary, names, satellite):
@@ -202,6 +234,8 @@ def jd_table(rows, summary, names, satellite):
     t["preferred"] = np.array([r["model"] == best for r in rows], bool)
     for kind, unit in _units():
         _add_quantile_columns(t, rows, kind, unit)
+    for kind, unit in _units():  # the same draws untruncated, beside the reported values
+        _add_quantile_columns(t, rows, kind, unit, "_untruncated")
     t["n_draws"] = np.array([r["n"] for r in rows], int)
     t.meta["usage"] = list(USAGE)
     t.meta["preferred_rule"] = rule
@@ -211,7 +245,7 @@ def jd_table(rows, summary, names, satellite):
     if resolved is not None:
         t.meta["dispersion_resolved"] = bool(resolved)
     t.meta["convention_2rh"] = ANGLE_2RH_CONVENTION
-    t.meta["conventions"] = CONVENTIONS
+    _set_truncation_meta(t, summary, names)
     t.meta["run"] = {
         "satellite": satellite.name,
         "ra_deg": satellite.ra_deg,
@@ -241,6 +275,9 @@ def fit_jd_table(summary, results, satellite):
             "log10_j": np.asarray(der["log10_j"]),
             "log10_d": np.asarray(der["log10_d"]),
         }
+        for kind in ("log10_j_untruncated", "log10_d_untruncated"):
+            if kind in der:
+                jd[kind] = np.asarray(der[kind])
         rows += jd_rows(n, jd)
     return jd_table(rows, summary, names, satellite)
 

@@ -2,13 +2,12 @@
 that describe the values, the held fraction of the whole halo, and the extensions SOLIDANG
 (pixel solid angles), NORM (the map divided by its integral) and DRAWS (the draws averaged)."""
 
-import textwrap
-
 import numpy as np
 
 from halo import __version__
 from halo.core.fileio import atomic_path
 from halo.core.vocabulary import HALO_TRUNCATION
+from halo.products.jd_truncation import fits_truncation_cards
 from halo.products.template_extent import HELD_TARGET
 
 __all__ = ["write_template", "fits_wcs_header", "template_lines"]
@@ -108,9 +107,9 @@ def _template_cards(hdr, kind, values, omega, info, n_side):
         "quadrature of the corners; see halo.products.export for the accuracy.",
     ):
         hdr.add_comment(line)
-    hdr["TRUNCATD"] = (False, "halo tidally truncated? no: see COMMENT")
-    for line in textwrap.wrap(HALO_TRUNCATION, 70):
-        hdr.add_comment(line)
+    # the map is built from the halo cut where the fit cut it (or not): TRUNC, TRUNCATD, COMMENT
+    default = {"truncated": False, "statement": HALO_TRUNCATION}
+    fits_truncation_cards(hdr, info.get("truncation") or default)
     return total
 
 

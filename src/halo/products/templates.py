@@ -80,7 +80,9 @@ def _extent(spec, satellite, draws, pick, opts, floor_deg):
     """(grid, kept draws, their whole-halo J and D): the map's half-width is the option, or the
     smallest of HALF_WIDTHS (at least ``floor_deg``) that holds HELD_TARGET of the mean J."""
     cones = [inscribed_cone_deg(h) for h in HALF_WIDTHS]
-    whole = whole_halo_draws(spec, satellite, *_subset(draws, pick), cones)
+    whole = whole_halo_draws(
+        spec, satellite, *_subset(draws, pick), cones, r_cut=draws["r_cut"][pick]
+    )
     ok = np.isfinite(whole["j_all"]) & np.isfinite(whole["d_all"])
     ok &= np.all(np.isfinite(whole["j"]), axis=1)
     half = opts.half_width_deg
@@ -104,7 +106,12 @@ def _template_draws(name, spec, satellite, draws, opts, floor_deg, where):
     tg, ok, whole = _extent(spec, satellite, draws, pick, opts, floor_deg)
     cone_in = math.atan(0.5 * tg.pixel_deg * DEG) / DEG
     prof = profile_draws(
-        spec, satellite, *_subset(draws, pick), np.concatenate([tg.grid, tg.mids]), [cone_in, 0.5]
+        spec,
+        satellite,
+        *_subset(draws, pick),
+        np.concatenate([tg.grid, tg.mids]),
+        [cone_in, 0.5],
+        r_cut=draws["r_cut"][pick],
     )
     good = ok & np.all(np.isfinite(prof["dj"]), axis=1) & np.all(np.isfinite(prof["j"]), axis=1)
     good &= np.all(np.isfinite(prof["dd"]), axis=1) & np.all(np.isfinite(prof["d"]), axis=1)
@@ -134,7 +141,8 @@ def _draw_table(draws, pick):
 def template_writers(name, spec, satellite, summary, draws, opts, floor_deg, where):
     """[("J", writer), ("D", writer)]: each writer(path) writes that template as FITS.
 
-    ``draws``: {"chain", "draw", "distance", "r_e", "values"} over every posterior draw;
+    ``draws``: {"chain", "draw", "distance", "r_e", "values", "r_cut", "truncation"} over
+    every posterior draw (``r_cut`` [kpc] the halo's cut per draw, inf for none);
     ``opts``: checked :class:`halo.products.template_extent.TemplateOptions`; ``floor_deg``:
     the smallest default half-width; ``where``: the posterior file, named in errors.
     """
@@ -160,6 +168,7 @@ def template_writers(name, spec, satellite, summary, draws, opts, floor_deg, whe
             "catalogue_sha256": summary["catalogue"]["sha256"],
             "run_version": summary["version"],
             "run_created": summary["created"],
+            "truncation": draws["truncation"],
         }
         writer = functools.partial(
             write_template,

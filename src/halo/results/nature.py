@@ -6,8 +6,9 @@ and no single label:
 - ``dynamics``: the Bayes factor of each dark model against stars only (from ``models``);
 - ``tides``: the Milky Way model and the point where its tides are judged
   (``tides.milky_way``, :mod:`halo.results.tidal_site`), and per model the Jacobi radius,
-  r_1/2 / r_J and the outermost member / r_J, with J and D truncated at r_J for dark models
-  (:mod:`halo.results.nature_draws`);
+  r_1/2 / r_J and the outermost member / r_J (:mod:`halo.results.nature_draws`), with the J
+  and D of dark models: the fit's own per-draw ``log10_j`` / ``log10_d`` (truncated at each
+  draw's r_J unless switched off) and their untruncated values (:mod:`halo.results.truncation`);
 - ``survival``: could the stars-only model, draw by draw, have survived two-body relaxation and
   the tidal field for its age (:mod:`halo.physics.survival`)? ``p_survives_age`` is the fraction
   of its draws that do;
@@ -37,10 +38,6 @@ JACOBI_FORMULA = (
     "r_J = (G M(<r_J) / (Omega^2 - d2Phi/dr2))^(1/3) (Binney & Tremaine 2008 section 8.3; King "
     "1962), M(<r_J) the model's own mass inside r_J, solved per draw"
 )
-JD_TRUNCATION = (
-    "log10_j and log10_d: the dark halo truncated at each draw's Jacobi radius (density zero "
-    "beyond r_J); *_untruncated: the same draws without truncation"
-)
 SURVIVAL_SOURCES = {
     "relaxation": "Spitzer 1987 eq. 2-63, ln Lambda = ln(0.4 N) floored at 1",
     "dissolution": "Baumgardt & Makino 2003 (MNRAS 340, 227) eq. 7, where ln(0.02 N) >= 1",
@@ -61,7 +58,7 @@ def _tides_reading(ratio):
     return text + "r_1/2 reaches the Jacobi radius; such a system is being tidally stripped"
 
 
-def _tides_entry(d):
+def _tides_entry(d, derived=None, jd_truncation=None):
     entry = {
         "jacobi_radius_pc": quantiles(d["r_j"] * 1e3),
         "r_half_over_jacobi": quantiles(d["r_half_over_jacobi"]),
@@ -72,10 +69,11 @@ def _tides_entry(d):
         "n_draws_unbound": int(np.sum(d["r_j"] <= R_J_FLOOR)),
         "formula": JACOBI_FORMULA,
     }
-    if "log10_j" in d:
+    if derived is not None and "log10_j_untruncated" in derived:
+        # the same per-draw numbers as models.<m>.derived (every draw, not the subsample)
         for key in ("log10_j", "log10_d", "log10_j_untruncated", "log10_d_untruncated"):
-            entry[key] = {k: quantiles(d[key][:, i]) for i, k in enumerate(angle_keys())}
-        entry["jd_truncation"] = JD_TRUNCATION
+            entry[key] = {k: quantiles(derived[key][:, i]) for i, k in enumerate(angle_keys())}
+        entry["jd_truncation"] = (jd_truncation or {}).get("statement")
     q = entry["r_half_over_jacobi"]
     entry["reading"] = _tides_reading(np.nan if q is None else q["median"])
     return entry
@@ -180,17 +178,24 @@ def nature_section(stars, satellite, results, specs, settings, models_summary=No
     ``settings``: the fit settings (their seed; progress lines on stderr when they ask for
     progress) or an int seed; ``models_summary``: summary.json ``models`` (for the dynamics
     line); ``options``: ``milky_way`` (a Milky Way model name; else the satellite file's
-    ``milky_way_model``, else the default).
+    ``milky_way_model``, else the default), ``tides`` (the fit's shared tidal field,
+    :func:`halo.results.truncation.shared_tides`: reused with the fit's pairing, so that r_J
+    here is the one behind the reported J and D).
     """
     seed, progress = _seed_and_progress(settings)
     rng = np.random.default_rng([seed, 12])
-    site, mw = tidal_site(
-        satellite,
-        results[STARS_ONLY]["samples"],
-        rng,
-        model=options.get("milky_way") or getattr(satellite, "milky_way_model", None),
-        progress=progress,
-    )
+    shared = options.get("tides") or {}
+    if shared.get("site") is not None and not options.get("milky_way"):
+        site, mw = shared["site"], shared["entry"]
+    else:
+        site, mw = tidal_site(
+            satellite,
+            results[STARS_ONLY]["samples"],
+            rng,
+            model=options.get("milky_way") or getattr(satellite, "milky_way_model", None),
+            progress=progress,
+        )
+        shared = {}
     ref = next((n for n in specs if n != STARS_ONLY), STARS_ONLY)
     member_prob = results[ref].get("member_prob")
     r_out = outermost_member_deg(stars, member_prob)
@@ -198,10 +203,12 @@ def nature_section(stars, satellite, results, specs, settings, models_summary=No
     for name, spec in specs.items():
         if progress is not None:
             progress(f"nature: Jacobi radius of {name}")
+        der = results[name].get("derived") or {}
+        pair = der.get("tidal_pair") if shared else None
         draws[name] = model_draws(
-            spec, satellite, results[name]["samples"], site, rng, r_out_deg=r_out
+            spec, satellite, results[name]["samples"], site, rng, r_out_deg=r_out, pair=pair
         )
-        tides[name] = _tides_entry(draws[name])
+        tides[name] = _tides_entry(draws[name], der, results[name].get("jd_truncation"))
     s = survival_draws(draws[STARS_ONLY], satellite.age_gyr, satellite.age_err_gyr, rng)
     s["n_stars"] = draws[STARS_ONLY]["mass_total"] / MEAN_STELLAR_MASS
     out = {

@@ -1,30 +1,28 @@
 """Per posterior draw of one model: Jacobi radius, tidal ratios, truncated J and D, survival.
 
-Each draw of the model (a random subsample of :data:`N_DRAWS`) is paired with a random draw of
-the tidal field (:func:`halo.results.tidal_site.tidal_site`). Its satellite is the fitted mass
-model (dark halo + stars, or stars alone) with the draw's light profile; the Jacobi radius solves
+Each draw of the model (a random subsample of :data:`N_DRAWS`) is paired with a draw of the
+tidal field (:func:`halo.results.tidal_site.tidal_site`): the same pairing as the fit's derived
+quantities (``pair``, :mod:`halo.results.truncation`) when given, so that r_J here is the r_J
+behind the reported J and D, else at random. Its satellite is the fitted mass model (dark halo +
+stars, or stars alone) with the draw's light profile; the Jacobi radius solves
 r_J^3 = G M(<r_J) / (Omega^2 - d2Phi/dr2) (:func:`halo.physics.tides.jacobi_radius`).
-Dark haloes are also truncated at r_J for J and D (:func:`halo.physics.tides.truncated`), the
-untruncated values computed on the same draws beside them.
+J and D truncated at r_J are not computed here: they are the fit's derived ``log10_j`` /
+``log10_d`` (every draw), see :func:`halo.results.derived.derive`.
 """
 
-import jax.numpy as jnp
 import numpy as np
 
 from halo.core.batching import map_draws
-from halo.core.constants import DEG
-from halo.core.vocabulary import STANDARD_ANGLES
 from halo.inputs.build import build_mass_model
 from halo.inputs.sky import angle_to_kpc
 from halo.physics.cosmology import rho_crit
-from halo.physics.jfactor import log10_d, log10_j
 from halo.physics.survival import (
     crossing_time,
     dissolution_time,
     half_mass_density,
     relaxation_time,
 )
-from halo.physics.tides import jacobi_radius, tidal_density, truncated
+from halo.physics.tides import jacobi_radius, tidal_density
 from halo.results.derived import parameter_values
 
 __all__ = ["N_DRAWS", "model_draws", "survival_draws", "outermost_member_deg"]
@@ -47,34 +45,27 @@ def _one(spec, satellite, rho_c):
 
     def one(vals, d, re, den):
         light = satellite.light(re)
-        model, dark = build_mass_model(spec, vals, light, rho_c)
+        model, _ = build_mass_model(spec, vals, light, rho_c)
         r_j = jacobi_radius(model, den)
-        r3 = light.r_half_3d()
-        out = {"r_j": r_j, "r_half_3d": r3, "mass_in_rj": model.mass(r_j)}
-        if dark is not None:
-            th = jnp.concatenate([jnp.asarray(STANDARD_ANGLES), jnp.atleast_1d(2 * re / d / DEG)])
-            cut = truncated(dark, r_j)
-            out.update(
-                log10_j=log10_j(cut, d, th),
-                log10_d=log10_d(cut, d, th),
-                log10_j_untruncated=log10_j(dark, d, th),
-                log10_d_untruncated=log10_d(dark, d, th),
-            )
-        return out
+        return {"r_j": r_j, "r_half_3d": light.r_half_3d(), "mass_in_rj": model.mass(r_j)}
 
     return one
 
 
-def model_draws(spec, satellite, samples, site, rng, *, r_out_deg, n_draws=N_DRAWS):
+def model_draws(spec, satellite, samples, site, rng, *, r_out_deg, n_draws=N_DRAWS, pair=None):
     """Per-draw arrays of one model: ``r_j``, ``r_half_3d`` [kpc], ``mass_in_rj`` and
     ``mass_total`` [Msun], ``distance`` [kpc], the paired tidal-field arrays (``site_*``),
-    ``r_half_over_jacobi``, ``outermost_over_jacobi`` (projected radius of the outermost
-    member over r_J) and, for dark models, truncated and untruncated ``log10_j`` / ``log10_d``."""
+    ``r_half_over_jacobi`` and ``outermost_over_jacobi`` (projected radius of the outermost
+    member over r_J). ``pair``: each posterior draw's tidal-field index (the fit's pairing);
+    None: random."""
     values = parameter_values(spec, samples)
     dist = np.asarray(samples["distance"], float).ravel()
     r_e = np.asarray(samples["r_e_kpc"], float).ravel()
     idx = rng.choice(len(dist), size=min(n_draws, len(dist)), replace=False)
-    pair = rng.integers(len(site["denominator"]), size=len(idx))
+    if pair is None:
+        pair = rng.integers(len(site["denominator"]), size=len(idx))
+    else:
+        pair = np.asarray(pair)[idx]
     sub = {k: np.asarray(v, float)[idx] for k, v in values.items()}
     res = map_draws(
         _one(spec, satellite, rho_crit()), sub, dist[idx], r_e[idx], site["denominator"][pair]

@@ -62,9 +62,14 @@ def _derived(res):
         keys = angle_keys()
         derived["log10_j"] = {k: quantiles(der["log10_j"][:, i]) for i, k in enumerate(keys)}
         derived["log10_d"] = {k: quantiles(der["log10_d"][:, i]) for i, k in enumerate(keys)}
+        for kind in ("log10_j_untruncated", "log10_d_untruncated"):  # beside the reported ones
+            if kind in der:
+                derived[kind] = {k: quantiles(der[kind][:, i]) for i, k in enumerate(keys)}
         derived["angle_2rh_deg"] = quantiles(der["angle_2rh_deg"])
         derived["dark_mass_half_msun"] = quantiles(der["dark_mass_half_msun"])
         derived["log_slope_half"] = quantiles(der["log_slope_half"])
+    if "r_jacobi_pc" in der:
+        derived["r_jacobi_pc"] = quantiles(der["r_jacobi_pc"])
     prof = {"radii_pc": list(PROFILE_RADII_PC)}
     for key in _PROFILES:
         if key in der:
@@ -97,6 +102,8 @@ def model_summary(res):
         "diagnostics": diag.as_dict(),
         "parameters": _parameters(res),
         "derived": _derived(res),
+        # whether (and where) J and D are tidally truncated (halo.results.truncation)
+        "jd_truncation": res.get("jd_truncation"),
         "evidence": {
             "log_z": res["evidence"].log_z,
             "log_z_err": res["evidence"].log_z_err,
@@ -181,6 +188,16 @@ def _models(results, names, specs):
     return entries, warnings
 
 
+def _jd_conventions(results, names):
+    """The run's J/D conventions: what "2rh" means and this run's truncation statement."""
+    out = dict(JD_CONVENTIONS)
+    stated = [results[n].get("jd_truncation") for n in names if n != STARS_ONLY]
+    stated = [t["statement"] for t in stated if t]
+    if stated:
+        out["halo_truncation"] = stated[0]  # one tidal field and one setting per fit
+    return out
+
+
 def build_summary(stars, satellite, settings, foreground, results, specs, satellite_path=None):
     """The summary dict (JSON-safe) of the model ``results`` ({name: result}, stars-only among
     them) fitted with ``settings``; ``foreground`` = (on, reason); ``specs`` {name: spec} in the
@@ -203,7 +220,7 @@ def build_summary(stars, satellite, settings, foreground, results, specs, satell
     if satellite_path is not None:
         summary["satellite_sha256"] = hashlib.sha256(Path(satellite_path).read_bytes()).hexdigest()
     summary["models"], warnings = _models(results, names, specs)
-    summary["jd_conventions"] = dict(JD_CONVENTIONS)
+    summary["jd_conventions"] = _jd_conventions(results, names)
     summary["warnings"].extend(warnings)
     binaries = results[STARS_ONLY]["binaries"]
     summary["verdict"] = build_verdict(
