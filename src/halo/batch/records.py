@@ -31,6 +31,8 @@ def _model_headline(m):
     out = {"converged": bool(m.get("converged", False))}
     out.update({k: diag.get(k) for k in _DIAGNOSTICS})
     out["m_half_msun"] = derived.get("m_half_msun")
+    # whether the J and D below are truncated at each draw's Jacobi radius (None: no halo)
+    out["jd_truncated"] = (m.get("jd_truncation") or {}).get("truncated")
     for kind in ("log10_j", "log10_d"):
         if derived.get(kind):
             out[kind] = {a: derived[kind][a] for a in angle_keys() if a in derived[kind]}
@@ -67,6 +69,7 @@ def _columns():
             text = f"{kind} [{unit}] within {where}"
             cols += [(f"{kind}_{a}_{q}", f"{text}: {q}") for q in QUANTILE_KEYS]
     cols += [
+        ("jd_truncated", "1: log10_j, log10_d truncated at each draw's Jacobi radius; 0: not"),
         ("ln_b", "ln Bayes factor against stars only"),
         ("ln_b_err", "its bridge-sampling error"),
         ("delta_elpd", "ELPD (LOO) difference against stars only"),
@@ -96,6 +99,7 @@ def _row(rec, model, m):
         per = m.get(kind) or {}
         for a in angle_keys():
             row.update({f"{kind}_{a}_{q}": _q(per.get(a), q) for q in QUANTILE_KEYS})
+    row["jd_truncated"] = _num(m.get("jd_truncated"))
     row["ln_b"] = _num(m.get("ln_bayes_factor"))
     row["ln_b_err"] = _num(m.get("ln_bayes_factor_err"))
     row["delta_elpd"] = _num(m.get("delta_elpd"))
@@ -126,7 +130,15 @@ def write_batch(out_dir, records):
     table = Table({c: [r[c] for r in rows] for c, _ in cols})  # every entry has a row
     for c, text in cols:
         table[c].description = text
-    table.meta["conventions"] = dict(JD_CONVENTIONS)
+    table.meta["conventions"] = {
+        **JD_CONVENTIONS,
+        "halo_truncation": (
+            "per entry and model, column jd_truncated: 1 when J and D are truncated at each "
+            "posterior draw's own Jacobi radius (the fits' default; the entry's summary.json "
+            "jd_conventions.halo_truncation names the Milky Way model and where the tides are "
+            "judged), 0 when untruncated (no tidal radius)"
+        ),
+    }
     table.meta["note"] = "one row per entry and model; NaN where a value does not apply"
     write_ecsv(out_dir / BATCH_ECSV, table)
 

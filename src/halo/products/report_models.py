@@ -114,6 +114,31 @@ def _fit_rows(slug, name, m, summary):
     return rows
 
 
+def _truncation_rows(slug, d):
+    """The Jacobi radius and the untruncated J and D at 0.5 deg, beside the reported ones."""
+    rows = []
+    if isinstance(d.get("r_jacobi_pc"), dict):
+        rows.append(
+            q_row(f"{slug}-r_jacobi_pc", "Jacobi radius r<sub>J</sub>", d["r_jacobi_pc"], "pc")
+        )
+    for group, sym, unit in (("log10_j", "J", J_UNIT), ("log10_d", "D", D_UNIT)):
+        q = (d.get(f"{group}_untruncated") or {}).get("0.5")
+        if isinstance(q, dict):
+            label = f"log<sub>10</sub> {sym}(0.5&deg;), untruncated"
+            rows.append(
+                q_row(f"{slug}-{group}_untruncated-0.5", label, q, f"log<sub>10</sub> {unit}", "f2")
+            )
+    return rows
+
+
+def _truncation_note(slug, m):
+    """The run's statement of how J and D were computed (truncated at r_J, or untruncated)."""
+    t = m.get("jd_truncation")
+    if not isinstance(t, dict) or not t.get("statement"):
+        return []
+    return [f'<p class="note" id="{slug}-jd-truncation">J and D: {esc(t["statement"])}</p>']
+
+
 def _loo_notes(loo):
     """Notes on unreliable leave-one-out terms and the LOO warnings."""
     parts = []
@@ -147,7 +172,8 @@ def model_section(name, m, summary):
     """One model's section: headline table, LOO notes and the folded parameter table."""
     slug = slugify(name)
     status = '<span class="ok">converged</span>' if m["converged"] else nc_mark(m).strip()
-    rows = _derived_rows(slug, m["derived"]) + _fit_rows(slug, name, m, summary)
+    rows = _derived_rows(slug, m["derived"]) + _truncation_rows(slug, m["derived"])
+    rows += _fit_rows(slug, name, m, summary)
     parts = [
         f'<section id="model-{slug}"><h3>Model {esc(name)} &mdash; {status}</h3>',
         f"<p>Spec: <code>{esc(m.get('spec_source'))}</code>",
@@ -155,6 +181,7 @@ def model_section(name, m, summary):
     if is_num(m.get("time_s")):
         parts.append(f"; fit time {m['time_s']:.0f} s")
     parts.append(f'.</p><table class="headline">{_HEAD}{"".join(rows)}</table>')
+    parts += _truncation_note(slug, m)
     parts += _loo_notes(m["loo"])
     parts.append(_parameters_table(slug, m.get("parameters")))
     parts.append("</section>")

@@ -24,10 +24,11 @@ def summary_rows(summary):
             "dark_mass_half_msun",
             "log_slope_half",
             "angle_2rh_deg",
+            "r_jacobi_pc",
         ):
             if d.get(k):
                 rows.append((model, f"derived.{k}", d[k]))
-        for group in ("log10_j", "log10_d"):
+        for group in ("log10_j", "log10_d", "log10_j_untruncated", "log10_d_untruncated"):
             for angle, q in (d.get(group) or {}).items():
                 rows.append((model, f"derived.{group}.{angle}", q))
     for name in ESTIMATOR_NAMES:
@@ -59,7 +60,7 @@ def write_summary_table(summary, path):
         m: v.get("vs_stars_only") for m, v in summary["models"].items() if "vs_stars_only" in v
     }
     t.meta["evidence"] = {m: v["evidence"] for m, v in summary["models"].items()}
-    if summary.get("jd_conventions"):  # what "2rh" means, untruncated haloes
+    if summary.get("jd_conventions"):  # what "2rh" means, the run's halo truncation
         t.meta["jd_conventions"] = summary["jd_conventions"]
     write_ecsv(path, t)
 
@@ -102,6 +103,22 @@ def _run_lines(summary):
     return lines
 
 
+def _truncation_lines(m):
+    """How the J and D above were computed: cut at each draw's Jacobi radius, or untruncated."""
+    t, d = m.get("jd_truncation") or {}, m["derived"]
+    if not t.get("truncated"):
+        return ["  (J, D: untruncated haloes)"] if t else []
+    unc_j = (d.get("log10_j_untruncated") or {}).get("0.5")
+    unc_d = (d.get("log10_d_untruncated") or {}).get("0.5")
+    med = [q.get("median") if q else None for q in (unc_j, unc_d)]
+    text = ", ".join(f"{k} {v:.2f}" for k, v in zip(("J", "D"), med, strict=True) if v is not None)
+    return [
+        f"  (J, D: halo truncated at each draw's Jacobi radius, r_J "
+        f"{_fmt_q(d.get('r_jacobi_pc'))} pc, Milky Way model {t.get('milky_way_model')};",
+        f"   untruncated log10 {text} at 0.5 deg)",
+    ]
+
+
 def _headline_lines(m):
     """A model's mass, M/L, J and D at 0.5 deg, binary fraction and members."""
     lines = []
@@ -112,6 +129,7 @@ def _headline_lines(m):
     if d.get("log10_j"):
         lines.append(f"  log10 J(0.5)   {_fmt_q(d['log10_j']['0.5'], '{:.2f}')} GeV^2 cm^-5")
         lines.append(f"  log10 D(0.5)   {_fmt_q(d['log10_d']['0.5'], '{:.2f}')} GeV cm^-2")
+        lines += _truncation_lines(m)
     if m.get("binary_fraction"):
         lines.append(f"  binary fraction {_fmt_q(m['binary_fraction'], '{:.2f}')}")
     if m.get("effective_members") is not None:

@@ -38,6 +38,9 @@ _DERIVED = {
     "angle_2rh_deg": "deg",
     "log10_j": "dex(GeV2 / cm5)",
     "log10_d": "dex(GeV / cm2)",
+    "log10_j_untruncated": "dex(GeV2 / cm5)",
+    "log10_d_untruncated": "dex(GeV / cm2)",
+    "r_jacobi_pc": "pc",
 }
 
 
