@@ -21,7 +21,10 @@ from halo.core.constants import G
 from halo.core.vocabulary import STARS_ONLY
 from halo.inputs.satellite import parse_satellite
 from halo.inputs.spec import load_spec
+from halo.pipeline.settings import FitSettings
+from halo.results.derived import derive
 from halo.results.nature import nature_section
+from halo.results.truncation import model_tides, shared_tides, truncation_entry
 
 Q_KEYS = {"median", "p16", "p84", "p2.5", "p97.5", "mean", "std"}
 
@@ -65,10 +68,22 @@ def _stars(sat, n=20):
     return SimpleNamespace(radius_deg=r_deg, feh=None)
 
 
-def _nature(sat, models):
+def _nature(sat, models, with_derived=False):
+    """The nature section of posterior-like draws; ``with_derived``: first the fit's derived
+    quantities (J and D truncated at each draw's r_J, halo.results.truncation), as a fit does."""
     results = {name: {"samples": samples, "member_prob": None} for name, samples in models.items()}
     specs = {name: load_spec(name) for name in models}
-    return nature_section(_stars(sat), sat, results, specs, 0)
+    if not with_derived:
+        return nature_section(_stars(sat), sat, results, specs, 0)
+    ctx = {}
+    tides = shared_tides(ctx, sat, models[STARS_ONLY], FitSettings(progress=False))
+    for name, res in results.items():
+        n = len(res["samples"]["distance"])
+        per_draw, pair = model_tides(tides, name, n, True)
+        der = derive(specs[name], sat, res["samples"], sigma_angles_deg=[0.01], tides=per_draw)
+        der["tidal_pair"] = pair
+        res.update(derived=der, jd_truncation=truncation_entry(tides, True, der))
+    return nature_section(_stars(sat), sat, results, specs, 0, tides=tides)
 
 
 def test_twenty_stars_at_12_kpc_would_not_survive():
@@ -118,7 +133,7 @@ def test_orbit_and_truncated_j_of_a_dark_model():
         pm_dec_err_masyr=0.05,
     )
     nfw = _draws(sat, m200=1e8, c200=15.0)
-    nat = _nature(sat, {"nfw": nfw, STARS_ONLY: _draws(sat, seed=2)})
+    nat = _nature(sat, {STARS_ONLY: _draws(sat, seed=2), "nfw": nfw}, with_derived=True)
     mw = nat["tides"]["milky_way"]
     assert "pericentre" in mw["judged_at"]
     assert mw["pericentre_kpc"]["p97.5"] <= mw["present_distance_kpc"]["p2.5"] + 1e-9
@@ -127,7 +142,7 @@ def test_orbit_and_truncated_j_of_a_dark_model():
         cut, full = t["log10_j"][key]["median"], t["log10_j_untruncated"][key]["median"]
         assert cut <= full + 1e-9
     assert t["log10_d"]["0.5"]["median"] < t["log10_d_untruncated"]["0.5"]["median"]
-    assert "truncated" in t["jd_truncation"]
+    assert "truncated at each posterior draw's own Jacobi radius" in t["jd_truncation"]
     # the halo is far more massive inside r_J than the stars: its r_J is larger
     assert t["jacobi_radius_pc"]["median"] > nat["tides"][STARS_ONLY]["jacobi_radius_pc"]["median"]
 
