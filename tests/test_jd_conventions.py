@@ -71,13 +71,16 @@ def test_export_states_the_untruncated_haloes(tmp_path_factory):
     exported = exported_run(tmp_path_factory)
     out = exported["out"]
     table = Table.read(out / "jd_factors.ecsv", format="ascii.ecsv")
-    assert "untruncated" in table.meta["conventions"]
+    # a run folder without models.<m>.jd_truncation (made before truncation existed) is read as
+    # untruncated, and says so (tests/test_jd_truncation.py: the default, truncated, runs)
+    assert "untruncated" in table.meta["halo_truncation"] and not any(table["jd_truncated"])
+    assert "halo_truncation" in table.meta["conventions"]
     assert table.meta["convention_2rh"] == JD_CONVENTIONS["2rh"]
     draws = Table.read(out / "nfw_draws.ecsv", format="ascii.ecsv")
-    assert "untruncated" in draws.meta["conventions"]
+    assert "untruncated" in draws.meta["halo_truncation"]
     templates = sorted(out.glob("*.fits"))
     assert templates
     for fits_path in templates:
         hdr = fits.getheader(fits_path)
-        assert hdr["TRUNCATD"] is False
+        assert hdr["TRUNCATD"] is False and hdr["TRUNC"] == "NONE"
         assert "untruncated" in " ".join(str(c) for c in hdr["COMMENT"])

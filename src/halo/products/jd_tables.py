@@ -26,7 +26,7 @@ from halo.core.vocabulary import (
     angle_key,
     angle_keys,
 )
-from halo.products.jd_truncation import truncation_of
+from halo.products.jd_truncation import short_statement, truncation_of
 
 __all__ = [
     "export_angles",
@@ -52,19 +52,13 @@ CONVENTIONS = (
 )
 
 
-def conventions_text(statement):
-    """meta ``conventions``: the cone conventions and the run's truncation statement."""
-    return f"{CONVENTIONS} Haloes: {statement}"
-
-
 def _set_truncation_meta(t, summary, names):
-    """meta ``halo_truncation`` (the statement), ``jd_truncation`` ({model: entry}) and
-    ``conventions``."""
+    """meta ``halo_truncation`` (the run's statement) and ``conventions``; the per-row flag is
+    the column ``jd_truncated``, when the table has a ``model`` column."""
     entries = {m: truncation_of(summary, m) for m in names}
-    statement = next(iter(entries.values()))["statement"]
-    t.meta["halo_truncation"] = statement
-    t.meta["jd_truncation"] = entries
-    t.meta["conventions"] = conventions_text(statement)
+    t.meta["halo_truncation"] = short_statement(next(iter(entries.values())))
+    t.meta["conventions"] = f"{CONVENTIONS} Truncation: see halo_truncation and jd_truncated."
+    return entries
 
 
 #: what the columns are for (the header's few lines)
@@ -73,8 +67,6 @@ USAGE = [
     "angle_label: half-angle in deg, or 2rh (see convention_2rh; half_angle_deg: its median).",
     "log10_*: quantiles, mean, std [dex] of log10 J, D; *_upper95: the 95% upper bound (quote "
     "it when the dispersion is not resolved); j_mean, d_mean: linear means.",
-    "log10_j, log10_d: the reported values (see halo_truncation); log10_*_untruncated_*: the "
-    "same draws without tidal truncation.",
 ]
 
 
@@ -237,6 +229,9 @@ def jd_table(rows, summary, names, satellite):
     for kind, unit in _units():  # the same draws untruncated, beside the reported values
         _add_quantile_columns(t, rows, kind, unit, "_untruncated")
     t["n_draws"] = np.array([r["n"] for r in rows], int)
+    entries = _set_truncation_meta(t, summary, names)
+    # True: log10_j, log10_d of this row are of the halo cut at each draw's Jacobi radius
+    t["jd_truncated"] = np.array([bool(entries[r["model"]].get("truncated")) for r in rows])
     t.meta["usage"] = list(USAGE)
     t.meta["preferred_rule"] = rule
     if margin is not None:
@@ -245,7 +240,6 @@ def jd_table(rows, summary, names, satellite):
     if resolved is not None:
         t.meta["dispersion_resolved"] = bool(resolved)
     t.meta["convention_2rh"] = ANGLE_2RH_CONVENTION
-    _set_truncation_meta(t, summary, names)
     t.meta["run"] = {
         "satellite": satellite.name,
         "ra_deg": satellite.ra_deg,

@@ -15,7 +15,13 @@ import numpy as np
 from halo.core.errors import InputError
 from halo.core.vocabulary import HALO_TRUNCATION
 
-__all__ = ["truncation_of", "read_jacobi_pc", "cut_radii_kpc", "fits_truncation_cards"]
+__all__ = [
+    "truncation_of",
+    "short_statement",
+    "read_jacobi_pc",
+    "cut_radii_kpc",
+    "fits_truncation_cards",
+]
 
 
 def truncation_of(summary, name):
@@ -25,6 +31,18 @@ def truncation_of(summary, name):
         return dict(entry)
     text = (summary.get("jd_conventions") or {}).get("halo_truncation") or HALO_TRUNCATION
     return {"truncated": False, "method": "none", "statement": text}
+
+
+def short_statement(entry):
+    """The truncation in one short sentence (table headers; the full one is in summary.json)."""
+    if not entry.get("truncated"):
+        return entry["statement"]
+    where = str(entry.get("judged_at", "")).split(",")[0].split(" of orbits")[0]
+    return (
+        "J and D of haloes truncated at each posterior draw's own Jacobi radius (density zero "
+        f"beyond r_J) in the Milky Way model {entry.get('milky_way_model')}, tides judged at "
+        f"the {where}; *_untruncated: the same draws uncut (summary.json jd_conventions)."
+    )
 
 
 def read_jacobi_pc(path):
