@@ -154,9 +154,42 @@ def calibrate_cmd(
 
 FOLDER_HELP = "a `halo fit` output folder (summary.json, members.ecsv, <model>/posterior.nc)"
 PLAN_HELP = (
-    "an observing plan: +N (N more stars), epochs (a second epoch for every star a year later) "
-    "or +N:epochs (repeatable, in the order to compare)"
+    "an observing plan (repeatable, in the order to compare): +N (N more stars), epochs (one more "
+    "epoch of the --epoch-stars a year after the catalogue's last epoch, or after the fit's date "
+    "without an mjd column), epochs@DATE[,DATE...] (new epochs on these dates: YYYY-MM-DD or "
+    "MJD), or +N:epochs[@DATE,...] (both; new stars are observed on the plan's dates)"
 )
+RESIM_HELP = (
+    "resimulate whole catalogues at each draw (all stars, errors drawn from members.ecsv) instead "
+    "of keeping the observed stars and adding the plan's stars and epochs to them"
+)
+CAT_HELP = (
+    "the catalogue the fit used, when summary.json's catalogue.source is gone (checked by sha256)"
+)
+EPOCH_STARS_HELP = (
+    "stars observed again by an epochs plan: comma-separated ids of members.ecsv, or a file "
+    "with one id per line (default: all)"
+)
+NEW_ERR_HELP = (
+    "errors [km/s] of the new measurements, uniform in LO,HI (default: a new star's drawn from "
+    "the catalogue's errors, a new epoch's its star's own)"
+)
+Resimulate = Annotated[bool, typer.Option("--resimulate", help=RESIM_HELP)]
+CatalogueOpt = Annotated[str | None, typer.Option("--catalogue", metavar="FILE", help=CAT_HELP)]
+EpochStars = Annotated[
+    str | None, typer.Option("--epoch-stars", metavar="IDS|FILE", help=EPOCH_STARS_HELP)
+]
+NewErrors = Annotated[str | None, typer.Option("--new-errors", metavar="LO,HI", help=NEW_ERR_HELP)]
+
+
+def _new_errors(text):
+    """(lo, hi) [km/s] of --new-errors, or None."""
+    from halo.cli.options import fail, parse_list
+
+    err = parse_list(text, "--new-errors")
+    if err is not None and (len(err) != 2 or not 0 < err[0] <= err[1]):
+        fail("--new-errors: expected LO,HI [km/s] with 0 < LO <= HI")
+    return None if err is None else (err[0], err[1])
 
 
 def forecast_cmd(
@@ -167,6 +200,10 @@ def forecast_cmd(
     draws_per_plan: int = typer.Option(
         20, "--draws-per-plan", metavar="N", help="future catalogues per plan (posterior draws)"
     ),
+    resimulate: Resimulate = False,
+    catalogue: CatalogueOpt = None,
+    epoch_stars: EpochStars = None,
+    new_errors: NewErrors = None,
     scheduler: Scheduler = None,
     workers: Workers = None,
     model: Annotated[
@@ -183,8 +220,9 @@ def forecast_cmd(
     ),
     quiet: Quiet = False,
 ):
-    """Forecast observing plans from a fit's posterior: future catalogues simulated at its draws,
-    fitted on a Dask cluster; ln B, interval widths and binary fraction per plan."""
+    """Forecast observing plans from a fit's posterior: future catalogues (by default the observed
+    stars kept, plus the plan's new stars and epochs) simulated at its draws, fitted on a Dask
+    cluster; ln B, interval widths and binary fraction per plan."""
     from halo.batch.forecast import parse_plan
     from halo.batch.forecast_report import format_forecast, run_forecast
     from halo.cli.batch_commands import check_cluster_options, fit_settings
@@ -203,6 +241,10 @@ def forecast_cmd(
         workers=workers,
         progress=not quiet,
         command=_command_line(ctx, "forecast", "folder"),
+        resimulate=resimulate,
+        catalogue=catalogue,
+        epoch_stars=epoch_stars,
+        new_errors=_new_errors(new_errors),
     )
     typer.echo(format_forecast(result, out))
     if result["failed"]:

@@ -1,29 +1,36 @@
 """`halo forecast`: what more data would tell, simulated from the current posterior of a fit.
 
 For each plan and each of K posterior draws (evenly spaced over the chains) a future catalogue is
-simulated at that draw (a preposterior, common practice): the satellite at the draw's distance
-and half-light radius, the draw's halo, anisotropy, stellar mass, v_sys and binary fraction
-(:func:`halo.mock.files.mock_from_spec`), as many members as the fit found (the sum of its
-membership probabilities) plus the plan's new stars, drawn from the light profile, and the
-catalogue's other stars as field stars (the mock generator's field). Every row's error is drawn
-from the fitted catalogue's per-star errors (``v_mean_err_kms`` of members.ecsv, with
-replacement) and its noise added with it. A plan "epochs" observes every star again a year
-(365.25 d) later.
+simulated at that draw (a preposterior, common practice). By default it keeps the observed stars
+(:mod:`halo.batch.forecast_keep`): the fit's own catalogue rows as measured, plus the plan's new
+stars (drawn with :func:`halo.mock.files.mock_from_spec` at the draw's distance, half-light
+radius, halo, anisotropy, stellar mass, v_sys and binary fraction) and the new epochs of the chosen
+stars (``--epoch-stars``, default all) on the plan's dates. New rows' errors: uniform in
+``new_errors`` [km/s] when given; else a new star's error is drawn from the catalogue's row errors
+(with replacement) and a new epoch has its star's own error.
 
-Plans: ``+N`` (N more stars), ``epochs`` (a second epoch for all), ``+N:epochs`` (both). The
+``resimulate=True`` (``--resimulate``) instead draws a whole new mock at the draw: as many members
+as the fit found (the sum of its membership probabilities) plus the plan's new stars, the
+catalogue's other stars as field stars, every row's error drawn from members.ecsv's
+``v_mean_err_kms`` (or uniform in ``new_errors``); epochs are then observed for every star.
+
+Plans (:mod:`halo.batch.forecast_plan`): ``+N``, ``epochs``, ``epochs@DATE,...``,
+``+N:epochs[@...]``. New stars are observed on every date of their plan (a bare plan: a year,
+365.25 d, after the catalogue's last epoch, or after the fit's date without an mjd column). The
 future catalogues are fitted on the batch runner (:func:`halo.batch.runner.run_batch`) with the
 fit's models; per plan the forecast reports the distribution of ln B (the chosen model against
 stars only), of the 16-84% interval widths of log10 M(<r_1/2) and log10 J(0.5 deg) [dex], and of
 the binary fraction's posterior median.
 """
 
-import dataclasses
-import re
+import json
 from pathlib import Path
 
 import numpy as np
 
 from halo.batch.calibration import thin_draws
+from halo.batch.forecast_keep import fit_catalogue, kept_future, observed
+from halo.batch.forecast_plan import YEAR_DAYS, Plan, parse_epoch_stars, parse_plan
 from halo.batch.sbc import _entry_toml, _mock_values, _truth_satellite, satellite_toml
 from halo.core.errors import InputError
 from halo.core.fileio import write_ecsv, write_text
@@ -32,30 +39,6 @@ from halo.products.rundir import load_posterior, read_run
 from halo.results.summary import clean
 
 __all__ = ["Plan", "parse_plan", "write_forecast_mocks", "YEAR_DAYS"]
-
-YEAR_DAYS = 365.25
-_PLAN = re.compile(r"(?:\+(\d{1,5}))?(?::?(epochs))?")
-
-
-@dataclasses.dataclass(frozen=True)
-class Plan:
-    """``n_add`` more stars and/or ``epochs``: a second epoch for every star a year later."""
-
-    text: str
-    n_add: int
-    epochs: bool
-
-    @property
-    def slug(self):
-        return f"add{self.n_add}" + ("-epochs" if self.epochs else "")
-
-
-def parse_plan(text):
-    """A :class:`Plan` of ``+N``, ``epochs`` or ``+N:epochs`` (InputError naming --plan)."""
-    m = _PLAN.fullmatch(text.strip())
-    if not m or not (m.group(1) or m.group(2)) or (m.group(1) and int(m.group(1)) < 1):
-        raise InputError(f"--plan: expected +N, epochs or +N:epochs (N >= 1), got {text!r}")
-    return Plan(text.strip(), int(m.group(1) or 0), bool(m.group(2)))
 
 
 def _spec_ref(spec):
@@ -73,48 +56,70 @@ def _pick_model(specs, model, run_dir):
     return model
 
 
-def _catalogue_now(run_dir):
-    """(members, field stars, per-star errors [km/s]) of the fit's members.ecsv."""
+def _members(run_dir):
+    """The fit's members.ecsv (astropy Table)."""
     from astropy.table import Table
 
     path = Path(run_dir) / "members.ecsv"
     if not path.is_file():
         raise InputError(f"{path}: no such file (not a halo fit output folder?)")
-    t = Table.read(path, format="ascii.ecsv")
-    n_members = max(2, int(round(float(np.nansum(t["member_prob"])))))
-    errs = np.asarray(t["v_mean_err_kms"], dtype=float)
-    return n_members, max(0, len(t) - n_members), errs[np.isfinite(errs)]
+    return Table.read(path, format="ascii.ecsv")
 
 
-def _observed(table, errs, rng):
-    """The noiseless mock ``table`` with each row's error drawn from ``errs`` and its noise."""
-    import astropy.units as u
-
-    e = rng.choice(errs, size=len(table), replace=True)
-    v = u.Quantity(table["vlos"]).to_value(u.km / u.s)
-    table["vlos"] = u.Quantity(v + rng.normal(0.0, e), u.km / u.s)
-    table["vlos_err"] = u.Quantity(e, u.km / u.s)
-    table.meta.clear()
-    return table
+def _catalogue_now(members):
+    """(members, field stars, per-star errors [km/s]) of the fit's members.ecsv."""
+    n_members = max(2, int(round(float(np.nansum(members["member_prob"])))))
+    errs = np.asarray(members["v_mean_err_kms"], dtype=float)
+    return n_members, max(0, len(members) - n_members), errs[np.isfinite(errs)]
 
 
-def _future(spec_ref, spec, sat, draw, plan, now, rng):
-    """One future catalogue (astropy Table) of ``plan`` at posterior ``draw``."""
-    n_members, n_field, errs = now
+def _mock_at(spec_ref, spec, sat, draw, rng, n_stars, errors, epochs, n_field=0):
+    """A mock (astropy Table) of ``n_stars`` members (+ ``n_field`` field stars) at ``draw``."""
     mock, _, _ = mock_from_spec(
         _truth_satellite(sat, draw),
         spec_ref,
         _mock_values(spec, draw),
-        n_stars=n_members + plan.n_add,
+        n_stars=n_stars,
         v_sys=draw["v_sys"],
-        error_range_kms=(0.0, 0.0),
+        error_range_kms=errors or (0.0, 0.0),
         seed=int(rng.integers(2**31)),
         n_foreground=n_field,
-        epochs_mjd=[60000.0, 60000.0 + YEAR_DAYS] if plan.epochs else None,
+        epochs_mjd=epochs,
         binary_fraction=draw.get("f_binary", 0.0),
         binary_population=spec.binary_population(),
     )
-    return _observed(mock.table, errs, rng)
+    mock.table.meta.clear()
+    return mock.table
+
+
+def _resimulated(spec_ref, spec, sat, draw, plan, ctx, rng):
+    """One future catalogue (astropy Table) of ``plan`` at posterior ``draw``: a whole new mock,
+    errors uniform in ``new_errors`` or drawn from members.ecsv's."""
+    n_members, n_field, errs = ctx["now"]
+    epochs = [ctx["t0"], *ctx["dates"][plan.text]] if plan.epochs else None
+    errors = ctx["new_errors"]
+    table = _mock_at(
+        spec_ref, spec, sat, draw, rng, n_members + plan.n_add, errors, epochs, n_field
+    )
+    return table if errors else observed(table, errs, rng)
+
+
+def _kept(spec_ref, spec, sat, draw, plan, ctx, rng):
+    """One future catalogue of ``plan`` at ``draw`` keeping the observed stars."""
+    cat, dates, errors = ctx["catalogue"], ctx["dates"][plan.text], ctx["new_errors"]
+    new = None
+    if plan.n_add:
+        epochs = list(dates) if (cat.has_mjd or plan.epochs) else None
+        new = _mock_at(spec_ref, spec, sat, draw, rng, plan.n_add, errors, epochs)
+        new = new if errors else observed(new, cat.values["vlos_err"], rng)
+    opts = {
+        "stars": ctx["stars"],
+        "members": ctx["member_probs"],
+        "f_binary": draw.get("f_binary", 0.0),
+        "population": spec.binary_population(),
+        "new_errors": errors,
+    }
+    return kept_future(cat, plan, dates, new, opts, rng)
 
 
 def _draws(run_dir, model, n_draws):
@@ -129,29 +134,120 @@ def _draws(run_dir, model, n_draws):
     ]
 
 
-def write_forecast_mocks(run_dir, out_dir, plans, n_draws, model=None, seed=0):
+def _check_dates(cat, stars, plan, dates):
+    """Refuse a plan date on which a chosen star already has an epoch."""
+    if cat is None or not cat.has_mjd or not plan.epochs:
+        return
+    chosen = np.isin(cat.ids, stars)
+    clash = np.isin(cat.values["mjd"][chosen], dates)
+    if clash.any():
+        sid = cat.ids[chosen][clash][0]
+        day = cat.values["mjd"][chosen][clash][0]
+        raise InputError(
+            f"--plan {plan.text}: star {sid!r} already has an epoch at MJD {day:g} in {cat.path}"
+        )
+
+
+def _context(run_dir, summary, members, options):
+    """What every future catalogue needs: the catalogue (kept mode), chosen stars, dates."""
+    resimulate = options.get("resimulate", False)
+    ids = [str(i).strip() for i in members["id"]]
+    if resimulate and options.get("epoch_stars") is not None:
+        raise InputError("--epoch-stars: not with --resimulate (no observed star is kept)")
+    cat = None if resimulate else fit_catalogue(run_dir, summary, options.get("catalogue"))
+    stars = parse_epoch_stars(options.get("epoch_stars"), ids)
+    last = None if cat is None else cat.last_epoch()
+    t_fit = cat.t_fit if cat is not None else None
+    if last is not None:
+        t0, rule = last, f"a year (365.25 d) after the catalogue's last epoch (MJD {last:.2f})"
+    else:
+        from halo.batch.forecast_keep import mjd_of_iso_time
+
+        t_fit = mjd_of_iso_time(summary["created"]) if t_fit is None else t_fit
+        t0 = t_fit
+        rule = f"a year (365.25 d) after the fit's date (MJD {t0:.2f}; the catalogue has no mjd)"
+    if resimulate:
+        rule = f"{rule}; --resimulate: every star's first epoch at MJD {t0:.2f}"
+    return {
+        "catalogue": cat,
+        "stars": ids if stars is None else stars,
+        "chosen_stars": "all" if stars is None else stars,
+        "t0": t0,
+        "bare_epoch_rule": rule,
+        "now": _catalogue_now(members),
+        "new_errors": options.get("new_errors"),
+        "member_probs": _member_probs(members),
+    }
+
+
+def _member_probs(members):
+    bp = members["binary_prob"] if "binary_prob" in members.colnames else None
+    return {
+        str(i).strip(): (float(m), float(bp[k]) if bp is not None else np.nan)
+        for k, (i, m) in enumerate(zip(members["id"], members["member_prob"], strict=True))
+    }
+
+
+def _columns_toml(cat):
+    """The manifest's column overrides so that the fits read the catalogue's own names."""
+    if cat is None:
+        return ""
+    odd = {r: n for r, n in cat.roles.items() if n != r}
+    if not odd:
+        return ""
+    return "columns = { " + ", ".join(f"{r} = {json.dumps(n)}" for r, n in odd.items()) + " }\n"
+
+
+def write_forecast_mocks(run_dir, out_dir, plans, n_draws, model=None, seed=0, **options):
     """Write DIR/mocks/: the future catalogues of every plan, the fit's satellite file and the
-    batch manifest. Returns (manifest, meta) with meta the model, models, n_members now and
-    per-entry (name, plan) pairs."""
+    batch manifest. ``options``: resimulate, catalogue, epoch_stars, new_errors (module notes).
+    Returns (manifest, meta, per-entry (name, plan) pairs)."""
     summary, sat, specs = read_run(run_dir)
     model = _pick_model(specs, model, run_dir)
     spec = specs[model]
     spec_ref = _spec_ref(spec)
-    now = _catalogue_now(run_dir)
+    ctx = _context(run_dir, summary, _members(run_dir), options)
+    ctx["dates"] = {p.text: p.dates or (ctx["t0"] + YEAR_DAYS,) for p in plans}
+    for p in plans:
+        _check_dates(ctx["catalogue"], ctx["stars"], p, ctx["dates"][p.text])
     folder = Path(out_dir) / "mocks"
     write_text(folder / "satellite.toml", satellite_toml(sat.as_dict()))
     draws = _draws(run_dir, model, n_draws)
     rng = np.random.default_rng(seed)
     models = [_spec_ref(specs[m]) if m in specs else m for m in summary["models"]]
+    make = _resimulated if options.get("resimulate") else _kept
     entries, text = [], []
-    for plan in plans:
+    cols = _columns_toml(ctx["catalogue"])
+    for i, plan in enumerate(plans):
         for k, draw in enumerate(draws):
-            name = f"{plan.slug}-{k:03d}"
-            table = _future(spec_ref, spec, sat, draw, plan, now, rng)
-            write_ecsv(folder / f"{name}.ecsv", table)
-            text.append(_entry_toml(name, models, seed + k))
+            name = f"p{i + 1}-{plan.slug}-{k:03d}"
+            write_ecsv(folder / f"{name}.ecsv", make(spec_ref, spec, sat, draw, plan, ctx, rng))
+            text.append(_entry_toml(name, models, seed + k).rstrip("\n") + "\n" + cols + "\n")
             entries.append((name, plan))
     manifest = folder / "manifest.toml"
     write_text(manifest, "".join(text))
-    meta = {"model": model, "models": models, "n_members_now": now[0], "n_field_now": now[1]}
-    return manifest, clean(meta), entries
+    return manifest, clean(_meta(model, models, ctx, plans, options)), entries
+
+
+def _meta(model, models, ctx, plans, options):
+    cat = ctx["catalogue"]
+    n_members, n_field, _ = ctx["now"]
+    return {
+        "model": model,
+        "models": models,
+        "mode": "resimulate" if options.get("resimulate") else "keep observed stars",
+        "catalogue": None if cat is None else str(cat.path),
+        "n_members_now": n_members,
+        "n_field_now": n_field,
+        "n_stars_now": n_members + n_field if cat is None else int(len(set(cat.ids))),
+        "new_errors_kms": None if not ctx["new_errors"] else list(ctx["new_errors"]),
+        "bare_epoch_rule": ctx["bare_epoch_rule"],
+        "plan_details": {
+            p.text: {
+                "dates_mjd": list(ctx["dates"][p.text]) if (p.epochs or p.n_add) else [],
+                "epoch_stars": ctx["chosen_stars"] if p.epochs else [],
+                "dates_given": bool(p.dates),
+            }
+            for p in plans
+        },
+    }

@@ -57,7 +57,7 @@ def _dist(values):
     return {"n": int(v.size), **{f"q{round(q * 100):02d}": float(np.quantile(v, q)) for q in _QS}}
 
 
-def _plan_summary(plan, rows):
+def _plan_summary(plan, rows, details):
     mine = [r for r in rows if r["plan"] == plan.text and r["status"] == "done"]
     ln_b = np.array([r["ln_b"] for r in mine if np.isfinite(r["ln_b"])])
     p = float(np.mean(np.abs(ln_b) > DECISIVE_LN_B)) if ln_b.size else None
@@ -65,6 +65,7 @@ def _plan_summary(plan, rows):
         "plan": plan.text,
         "n_add": plan.n_add,
         "second_epoch": plan.epochs,
+        **details,
         "n_fits": len(mine),
         "ln_b": _dist(ln_b),
         "p_abs_ln_b_gt_3": p,
@@ -73,6 +74,14 @@ def _plan_summary(plan, rows):
         "f_binary_median": _dist(r["f_binary_median"] for r in mine),
         "unconverged": [r["name"] for r in mine if not r["converged"]],
     }
+
+
+def _failed(rows, records):
+    return [
+        {"name": r["name"], "error": rec.get("error")}
+        for r, rec in zip(rows, records, strict=True)
+        if r["status"] != "done"
+    ]
 
 
 def _figure(path, rows, plans, n_now, model):
@@ -113,12 +122,16 @@ def run_forecast(
     workers=None,
     progress=True,
     command=None,
+    **options,
 ):
     """Forecast ``plans`` (:class:`halo.batch.forecast.Plan`) for fit folder ``run_dir``;
-    returns the forecast.json record."""
+    ``options`` (resimulate, catalogue, epoch_stars, new_errors) go to
+    :func:`halo.batch.forecast.write_forecast_mocks`; returns the forecast.json record."""
     out_dir = _check_out_dir(Path(out_dir))
     seed = settings.seed
-    manifest, meta, entries = write_forecast_mocks(run_dir, out_dir, plans, n_draws, model, seed)
+    manifest, meta, entries = write_forecast_mocks(
+        run_dir, out_dir, plans, n_draws, model, seed, **options
+    )
     if progress:
         print(f"forecast: fitting {len(entries)} future catalogues", file=sys.stderr)
     settings = dataclasses.replace(settings, progress=False)
@@ -126,12 +139,13 @@ def run_forecast(
     outcome = run_batch(
         manifest, fits, scheduler=scheduler, workers=workers, settings=settings, progress=progress
     )
-    n_now = meta["n_members_now"] + meta["n_field_now"]
+    n_now = meta["n_stars_now"]
+    details = meta.pop("plan_details")
     rows = [
         _row(n, p, rec, fits, meta["model"], n_now)
         for (n, p), rec in zip(entries, outcome.records, strict=True)
     ]
-    per_plan = [_plan_summary(p, rows) for p in plans]
+    per_plan = [_plan_summary(p, rows, details[p.text]) for p in plans]
     decisive = next(
         (s["plan"] for s in per_plan if (s["p_abs_ln_b_gt_3"] or 0) >= DECISIVE_PROBABILITY), None
     )
@@ -139,17 +153,12 @@ def run_forecast(
         "command": command,
         "run": str(run_dir),
         **meta,
-        "n_stars_now": n_now,
         "draws_per_plan": n_draws,
         "settings": settings.as_dict(),
         "plans": per_plan,
         "decisive_plan": decisive,
         "decisive_rule": "first plan with P(|ln B| > 3) >= 0.9",
-        "failed": [
-            {"name": r["name"], "error": rec.get("error")}
-            for r, rec in zip(rows, outcome.records, strict=True)
-            if r["status"] != "done"
-        ],
+        "failed": _failed(rows, outcome.records),
         "entries": rows,
     }
     write_json(out_dir / "forecast.json", clean(result))
@@ -160,18 +169,35 @@ def run_forecast(
     return result
 
 
+def _plan_line(s):
+    """What a plan observes: its dates and stars (None for a plan of new stars only)."""
+    dates = ", ".join(f"{d:.2f}" for d in s.get("dates_mjd") or [])
+    if not s["second_epoch"]:
+        return f"    new stars observed at MJD {dates}" if dates else None
+    stars = s["epoch_stars"]
+    who = "all stars" if stars == "all" else f"{len(stars)} star(s): {', '.join(stars[:8])}"
+    who += ", ..." if stars != "all" and len(stars) > 8 else ""
+    return f"    new epochs at MJD {dates} for {who}"
+
+
 def format_forecast(result, out_dir):
+    kept = result.get("catalogue")
+    how = f"keeping the observed stars of {kept}" if kept else "whole catalogues resimulated"
     lines = [
         f"forecast from {result['run']} ({result['model']} vs stars only, "
-        f"{result['n_stars_now']} stars now):"
+        f"{result['n_stars_now']} stars now; {how}):"
     ]
     for s in result["plans"]:
         lb, p = s["ln_b"], s["p_abs_ln_b_gt_3"]
         med = f"{lb['q50']:.2f} [{lb['q16']:.2f}, {lb['q84']:.2f}]" if lb.get("n") else "n/a"
         prob = "n/a" if p is None else f"{p:.2f}"
         lines.append(f"  plan {s['plan']}: ln B {med}, P(|ln B| > 3) = {prob} ({s['n_fits']} fits)")
+        what = _plan_line(s)
+        lines += [what] if what else []
         if s["unconverged"]:
             lines.append(f"    WARNING: NOT CONVERGED: {', '.join(s['unconverged'])}")
+    if any(s["second_epoch"] and not s["dates_given"] for s in result["plans"]):
+        lines.append(f"  (a bare 'epochs': {result['bare_epoch_rule']})")
     d = result["decisive_plan"]
     lines.append(f"first plan reaching |ln B| > 3 with 90% probability: {d or 'none'}")
     lines += [f"FAILED {f['name']}: {f['error']}" for f in result["failed"]]
