@@ -172,13 +172,18 @@ def test_caveats_in_plain_words(run):
     for word in ("spherical", "equilibrium", "prior", "bayes factor", "binar", "foreground"):
         assert word in caveats, word
     assert "anisotropy" in caveats and "degenera" in caveats
-    # J and D: untruncated haloes, and the 2 R_e/d angle is the projected radius's
-    assert "untruncated" in caveats and "circularised projected half-light radius" in caveats
+    # J and D: truncated at each draw's Jacobi radius by default, untruncated when switched off,
+    # and the 2 R_e/d angle is the projected radius's
+    assert "jacobi radius" in caveats and "untruncated" in caveats
+    assert "circularised projected half-light radius" in caveats
 
 
 def test_summary_states_the_jd_conventions(run):
     conv = run["summary"]["jd_conventions"]
-    assert "untruncated" in conv["halo_truncation"]
+    # the run's own statement (a fit truncates at each draw's Jacobi radius by default)
+    trunc = run["summary"]["models"]["nfw"]["jd_truncation"]
+    assert conv["halo_truncation"] == trunc["statement"] and "Jacobi radius" in trunc["statement"]
+    assert run["page"].text_of("nfw-jd-truncation").endswith(trunc["statement"])
     assert "circularised projected half-light radius" in conv["2rh"]
     page, s = run["page"], run["summary"]
     ang = s["models"]["nfw"]["derived"]["angle_2rh_deg"]["median"]
