@@ -6,7 +6,7 @@ from typing import Annotated
 
 import typer
 
-from halo.cli.options import Anisotropy, Draws, Models, Quiet, Seed, Warmup
+from halo.cli.options import Anisotropy, Columns, Draws, Models, Quiet, Seed, Warmup
 
 __all__ = ["calibrate_cmd", "forecast_cmd"]
 
@@ -204,6 +204,7 @@ def forecast_cmd(
     catalogue: CatalogueOpt = None,
     epoch_stars: EpochStars = None,
     new_errors: NewErrors = None,
+    column: Columns = None,
     scheduler: Scheduler = None,
     workers: Workers = None,
     model: Annotated[
@@ -245,6 +246,7 @@ def forecast_cmd(
         catalogue=catalogue,
         epoch_stars=epoch_stars,
         new_errors=_new_errors(new_errors),
+        columns=column,
     )
     typer.echo(format_forecast(result, out))
     if result["failed"]:

@@ -154,7 +154,11 @@ def _context(run_dir, summary, members, options):
     ids = [str(i).strip() for i in members["id"]]
     if resimulate and options.get("epoch_stars") is not None:
         raise InputError("--epoch-stars: not with --resimulate (no observed star is kept)")
-    cat = None if resimulate else fit_catalogue(run_dir, summary, options.get("catalogue"))
+    cat = (
+        None
+        if resimulate
+        else fit_catalogue(run_dir, summary, options.get("catalogue"), options.get("columns"))
+    )
     stars = parse_epoch_stars(options.get("epoch_stars"), ids)
     last = None if cat is None else cat.last_epoch()
     t_fit = cat.t_fit if cat is not None else None

@@ -13,6 +13,10 @@ so that v_new - v_obs has variance e_old^2 + e_new^2 (plus the orbital change). 
 binary with probability its ``binary_prob`` of members.ecsv (the draw's f_binary where that is
 missing or NaN; never for field stars, member_prob < 0.5), its orbit drawn from the spec's binary
 population (:func:`halo.physics.binaries.sample_orbits`, ``los_velocity``).
+New rows carry the catalogue's own columns; the values a new row has no measurement of are left
+empty (a new epoch repeats its star's position and member_prob but not its [Fe/H]; a new star has
+member_prob 1 when the catalogue has that column: it is a member by construction).
+
 Approximation (common practice for a preposterior): the old measurement's noise eps_old is drawn
 afresh, not conditioned on v_obs, and the orbit is drawn from the population, not conditioned on
 the star's observed velocities.
@@ -28,7 +32,7 @@ from astropy.table import Table, vstack
 
 from halo.core.errors import InputError
 from halo.inputs.catalogue import _read_table
-from halo.inputs.columns import column_values, resolve_columns
+from halo.inputs.columns import column_values, parse_column_overrides, resolve_columns
 from halo.inputs.values import star_ids
 from halo.physics.binaries import los_velocity, sample_orbits
 
@@ -108,12 +112,13 @@ def _locate(run_dir, summary, given):
     return src
 
 
-def fit_catalogue(run_dir, summary, given=None):
-    """:class:`FitCatalogue` of the fit in ``run_dir`` (columns matched by their role names)."""
+def fit_catalogue(run_dir, summary, given=None, columns=None):
+    """:class:`FitCatalogue` of the fit in ``run_dir``; ``columns``: ("role=NAME", ...) overrides
+    as the fit took them (the fit folder does not record them)."""
     path = _locate(run_dir, summary, given)
     table, _, _ = _read_table(path)
     where = f"{path}:"
-    roles = resolve_columns(table.colnames, {}, where)
+    roles = resolve_columns(table.colnames, parse_column_overrides(columns or ()), where)
     values, _ = column_values(table, roles, where)
     if "id" in roles:
         ids = np.array(star_ids(table[roles["id"]], roles["id"], where), dtype=str)
