@@ -218,3 +218,44 @@ def test_a_folder_that_is_no_fit_is_refused(tmp_path, capsys):
     code = main(["forecast", str(tmp_path), "--out", str(tmp_path / "o"), "--plan", "+5"])
     err = capsys.readouterr().err.strip()
     assert code == 2 and "summary.json" in err and "\n" not in err
+
+
+def _run_on(fitted, tmp_path, table):
+    """A copy of the fit folder whose summary.json names ``table`` (written as its catalogue)."""
+    import hashlib
+
+    run, cat = tmp_path / "fit", tmp_path / "cat2.ecsv"
+    shutil.copytree(fitted["run"], run)
+    table.write(cat, format="ascii.ecsv")
+    summary = json.loads((run / "summary.json").read_text())
+    summary["catalogue"].update(
+        source=str(cat), sha256=hashlib.sha256(cat.read_bytes()).hexdigest()
+    )
+    (run / "summary.json").write_text(json.dumps(summary))
+    return run, summary
+
+
+def test_bare_epochs_without_mjd_are_a_year_after_the_fit(fitted, tmp_path):
+    from halo.batch.manifest import read_manifest
+
+    one = Table.read(fitted["cat"])
+    one = one[one["mjd"] == 60000.0]
+    one.remove_column("mjd")
+    one.rename_column("vlos", "VHEL")
+    run, summary = _run_on(fitted, tmp_path, one)
+    plans = [parse_plan("epochs")]
+    with pytest.raises(InputError, match="missing required column 'vlos'"):
+        write_forecast_mocks(run, tmp_path / "a", plans, 1)
+    manifest, meta, entries = write_forecast_mocks(
+        run, tmp_path / "b", plans, 1, columns=["vlos=VHEL"]
+    )
+    fut = Table.read(manifest.parent / f"{entries[0][0]}.ecsv")
+    # MJD of the fit's date: astropy.time of summary.json's "created" stamp
+    t_fit = Time(summary["created"][:19], scale="utc").mjd
+    assert np.asarray(fut["mjd"][: len(one)]) == pytest.approx(np.full(len(one), t_fit))
+    assert np.asarray(fut["mjd"][len(one) :]) == pytest.approx(np.full(len(one), t_fit + 365.25))
+    assert np.array_equal(np.asarray(fut["VHEL"][: len(one)]), np.asarray(one["VHEL"]))
+    assert "the fit's date" in meta["bare_epoch_rule"]
+    # the fits are told the catalogue's own column names
+    (entry,) = read_manifest(manifest)
+    assert entry.columns == ("vlos=VHEL",)
