@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 
 from halo.batch.calibration import thin_draws
-from halo.batch.forecast_keep import fit_catalogue, kept_future, observed
+from halo.batch.forecast_keep import fit_catalogue, kept_future, mjd_of_iso_time, observed
 from halo.batch.forecast_plan import YEAR_DAYS, Plan, parse_epoch_stars, parse_plan
 from halo.batch.sbc import _entry_toml, _mock_values, _truth_satellite, satellite_toml
 from halo.core.errors import InputError
@@ -165,8 +165,6 @@ def _context(run_dir, summary, members, options):
     if last is not None:
         t0, rule = last, f"a year (365.25 d) after the catalogue's last epoch (MJD {last:.2f})"
     else:
-        from halo.batch.forecast_keep import mjd_of_iso_time
-
         t_fit = mjd_of_iso_time(summary["created"]) if t_fit is None else t_fit
         t0 = t_fit
         rule = f"a year (365.25 d) after the fit's date (MJD {t0:.2f}; the catalogue has no mjd)"
@@ -233,6 +231,12 @@ def write_forecast_mocks(run_dir, out_dir, plans, n_draws, model=None, seed=0, *
     return manifest, clean(_meta(model, models, ctx, plans, options)), entries
 
 
+def _dated(plan, cat, options):
+    """Whether the plan's new rows carry dates (an epochs plan, or new stars in a catalogue with
+    an mjd column)."""
+    return plan.epochs or (not options.get("resimulate") and cat is not None and cat.has_mjd)
+
+
 def _meta(model, models, ctx, plans, options):
     cat = ctx["catalogue"]
     n_members, n_field, _ = ctx["now"]
@@ -248,7 +252,7 @@ def _meta(model, models, ctx, plans, options):
         "bare_epoch_rule": ctx["bare_epoch_rule"],
         "plan_details": {
             p.text: {
-                "dates_mjd": list(ctx["dates"][p.text]) if (p.epochs or p.n_add) else [],
+                "dates_mjd": list(ctx["dates"][p.text]) if _dated(p, cat, options) else [],
                 "epoch_stars": ctx["chosen_stars"] if p.epochs else [],
                 "dates_given": bool(p.dates),
             }
