@@ -177,7 +177,8 @@ def _plan_line(s):
     stars = s["epoch_stars"]
     who = "all stars" if stars == "all" else f"{len(stars)} star(s): {', '.join(stars[:8])}"
     who += ", ..." if stars != "all" and len(stars) > 8 else ""
-    return f"    new epochs at MJD {dates} for {who}"
+    also = f"; {s['n_add']} new stars on these dates" if s["n_add"] else ""
+    return f"    new epochs at MJD {dates} for {who}{also}"
 
 
 def format_forecast(result, out_dir):
