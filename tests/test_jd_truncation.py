@@ -18,6 +18,7 @@ import math
 
 import numpy as np
 import pytest
+import xarray as xr
 from astropy.io import fits
 from astropy.table import Table
 from export_setup import SAT, nfw_posterior
@@ -194,8 +195,9 @@ def test_fit_reports_truncated_j_beside_untruncated(runs):
     # nature.tides shows the same J numbers (the fit's per-draw values, same pairing)
     t = s["nature"]["tides"]["nfw"]
     assert t["log10_j"] == der["log10_j"] and t["log10_d_untruncated"] == der["log10_d_untruncated"]
-    rj = der["r_jacobi_pc"]
-    assert rj["p16"] <= t["jacobi_radius_pc"]["median"] <= rj["p84"]
+    # ... and the same r_J (every draw, the same pairing with the tidal field)
+    for q, v in der["r_jacobi_pc"].items():
+        assert t["jacobi_radius_pc"][q] == pytest.approx(v, rel=1e-9), q
     assert t["jd_truncation"] == trunc["statement"]
 
 
@@ -228,6 +230,13 @@ def test_export_cuts_at_the_fits_jacobi_radius(runs):
         for col in ("log10_j_median", "log10_d_p16", "log10_j_untruncated_median"):
             assert b[col] == pytest.approx(a[col], abs=1e-9), (label, col)
     draws = Table.read(exp / "nfw_draws.ecsv", format="ascii.ecsv")
+    # posterior.nc's derived group holds the fit's r_J and J per draw: the export cut there
+    with xr.open_datatree(on / "nfw" / "posterior.nc") as tree:
+        group = tree["derived"].to_dataset()
+        r_pc = np.asarray(group["r_jacobi_pc"].values).ravel()
+        j05 = np.asarray(group["log10_j"].sel(angle="0.5").values).ravel()
+    np.testing.assert_allclose(draws["r_cut_pc"], r_pc, rtol=1e-12)
+    np.testing.assert_allclose(draws["log10_j_0_5"], j05, rtol=0, atol=1e-9)
     assert {"r_cut_pc", "log10_j_0_5", "log10_j_untruncated_0_5"} <= set(draws.colnames)
     assert np.all(draws["log10_d_0_5"] <= draws["log10_d_untruncated_0_5"] + 1e-12)
     for path in (exp / "nfw_dj_domega.fits", exp / "nfw_dd_domega.fits"):

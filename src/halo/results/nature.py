@@ -25,7 +25,7 @@ from halo.core.vocabulary import STARS_ONLY, angle_keys
 from halo.physics.survival import BM03_N_RANGE, MEAN_STELLAR_MASS, METHOD_BM03
 from halo.physics.tides import R_J_FLOOR
 from halo.results.metallicity import metallicity_section
-from halo.results.nature_draws import model_draws, outermost_member_deg, survival_draws
+from halo.results.nature_draws import N_DRAWS, model_draws, outermost_member_deg, survival_draws
 from halo.results.tidal_site import tidal_site
 
 __all__ = ["CAUTION", "nature_section"]
@@ -205,9 +205,12 @@ def nature_section(stars, satellite, results, specs, settings, models_summary=No
             progress(f"nature: Jacobi radius of {name}")
         der = results[name].get("derived") or {}
         pair = der.get("tidal_pair") if shared else None
+        # with the fit's pairing every draw is used: r_J here is the r_J behind its J and D
+        n = N_DRAWS if pair is None else len(pair)
         draws[name] = model_draws(
-            spec, satellite, results[name]["samples"], site, rng, r_out_deg=r_out, pair=pair
-        )
+            spec, satellite, results[name]["samples"], site, rng, r_out_deg=r_out, pair=pair,
+            n_draws=n,
+        )  # fmt: skip
         tides[name] = _tides_entry(draws[name], der, results[name].get("jd_truncation"))
     s = survival_draws(draws[STARS_ONLY], satellite.age_gyr, satellite.age_err_gyr, rng)
     s["n_stars"] = draws[STARS_ONLY]["mass_total"] / MEAN_STELLAR_MASS

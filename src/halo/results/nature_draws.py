@@ -1,10 +1,11 @@
 """Per posterior draw of one model: Jacobi radius, tidal ratios, truncated J and D, survival.
 
-Each draw of the model (a random subsample of :data:`N_DRAWS`) is paired with a draw of the
-tidal field (:func:`halo.results.tidal_site.tidal_site`): the same pairing as the fit's derived
-quantities (``pair``, :mod:`halo.results.truncation`) when given, so that r_J here is the r_J
-behind the reported J and D, else at random. Its satellite is the fitted mass model (dark halo +
-stars, or stars alone) with the draw's light profile; the Jacobi radius solves
+Each draw of the model is paired with a draw of the tidal field
+(:func:`halo.results.tidal_site.tidal_site`): in a fit, every draw with the same pairing as its
+derived quantities (``pair``, :mod:`halo.results.truncation`), so that r_J here is the r_J behind
+the reported J and D; else a random subsample of :data:`N_DRAWS` paired at random. Its
+satellite is the fitted mass model (dark halo + stars, or stars alone) with the draw's light
+profile; the Jacobi radius solves
 r_J^3 = G M(<r_J) / (Omega^2 - d2Phi/dr2) (:func:`halo.physics.tides.jacobi_radius`).
 J and D truncated at r_J are not computed here: they are the fit's derived ``log10_j`` /
 ``log10_d`` (every draw), see :func:`halo.results.derived.derive`.

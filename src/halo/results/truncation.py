@@ -16,7 +16,7 @@ import zlib
 
 import numpy as np
 
-from halo.core.vocabulary import HALO_TRUNCATION, jacobi_truncation_text
+from halo.core.vocabulary import HALO_TRUNCATION, angle_keys, jacobi_truncation_text
 from halo.results.tidal_site import tidal_site
 
 __all__ = ["shared_tides", "model_tides", "truncation_entry", "derived_group"]
@@ -88,9 +88,20 @@ def truncation_entry(tides, truncate, derived=None):
     return out
 
 
+#: per-draw J and D written beside r_J: (key, units)
+_JD_DRAWS = (
+    ("log10_j", "log10 GeV2 cm-5"),
+    ("log10_d", "log10 GeV cm-2"),
+    ("log10_j_untruncated", "log10 GeV2 cm-5"),
+    ("log10_d_untruncated", "log10 GeV cm-2"),
+)
+
+
 def derived_group(derived, n_chain, entry):
-    """The ``derived`` group of posterior.nc (xarray Dataset, dims chain, draw): ``r_jacobi_pc``
-    per draw when it exists, and the truncation statement as attributes; None without r_J."""
+    """The ``derived`` group of posterior.nc (xarray Dataset, dims chain, draw[, angle]):
+    ``r_jacobi_pc`` per draw when it exists, the reported and untruncated ``log10_j`` and
+    ``log10_d`` of dark models (angle: 0.1, 0.2, 0.5 deg and 2rh), and the truncation statement
+    as attributes; None without r_J."""
     import xarray as xr
 
     if "r_jacobi_pc" not in derived:
@@ -99,6 +110,13 @@ def derived_group(derived, n_chain, entry):
     ds = xr.Dataset({"r_jacobi_pc": (("chain", "draw"), r)})
     ds["r_jacobi_pc"].attrs["units"] = "pc"
     ds["r_jacobi_pc"].attrs["long_name"] = "Jacobi radius of the draw (whole mass model)"
+    for key, units in _JD_DRAWS:
+        if key in derived:
+            v = np.asarray(derived[key], float)
+            ds[key] = (("chain", "draw", "angle"), v.reshape(n_chain, -1, v.shape[-1]))
+            ds[key].attrs["units"] = units
+    if "log10_j" in ds:
+        ds = ds.assign_coords(angle=angle_keys())
     ds.attrs["jd_truncated"] = int(bool(entry["truncated"]))
     ds.attrs["jd_truncation"] = entry["statement"]
     return ds
