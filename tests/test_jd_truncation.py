@@ -13,6 +13,8 @@
    untruncated values of run 2 as its reported ones, and says so.
 """
 
+import contextlib
+import io
 import json
 import math
 
@@ -155,12 +157,14 @@ def runs(tmp_path_factory):
     args = fit_command(cat, sat_file, on, "nfw") + tiny_chains(2, 60, 60) + NO_EXTRAS
     assert main(args + ["--quiet"]) == 0
     exp = root / "exp"
-    assert main(["export", str(on), "--out", str(exp), "--template-draws", "8"]) == 0
+    printed = io.StringIO()
+    with contextlib.redirect_stdout(printed):
+        assert main(["export", str(on), "--out", str(exp), "--template-draws", "8"]) == 0
     off = root / "off"
     settings = _settings(json.loads((on / "summary.json").read_text()))
     stars = read_catalogue(cat, sat)
     fit(stars, sat, off, ["nfw"], settings, reuse={"nfw": on, "stars-only": on})
-    _RUN.update(on=on, exp=exp, off=off)
+    _RUN.update(on=on, exp=exp, off=off, export_text=printed.getvalue())
     return _RUN
 
 
@@ -239,6 +243,8 @@ def test_export_cuts_at_the_fits_jacobi_radius(runs):
     np.testing.assert_allclose(draws["log10_j_0_5"], j05, rtol=0, atol=1e-9)
     assert {"r_cut_pc", "log10_j_0_5", "log10_j_untruncated_0_5"} <= set(draws.colnames)
     assert np.all(draws["log10_d_0_5"] <= draws["log10_d_untruncated_0_5"] + 1e-12)
+    assert "nfw: log10 J(0.5 deg)" in runs["export_text"]
+    assert "truncated at r_J" in runs["export_text"]
     for path in (exp / "nfw_dj_domega.fits", exp / "nfw_dd_domega.fits"):
         hdr = fits.getheader(path)
         assert hdr["TRUNC"] == "JACOBI" and hdr["TRUNCATD"] is True

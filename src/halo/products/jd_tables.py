@@ -287,9 +287,12 @@ def headline_lines(table, label="0.5"):
     """One line per model: log10 J in the ``label`` cone, median +- std [dex], its 95% upper
     bound, the convergence state and whether the model is the preferred one."""
     lines = []
+    cut = "jd_truncated" in table.colnames
     for row in table[table["angle_label"] == label]:
         state = "converged" if row["converged"] else "NOT CONVERGED"
         pref = ", preferred" if row["preferred"] else ""
+        if cut:  # what the number is of: the halo cut at each draw's r_J, or the whole halo
+            state = ("truncated at r_J, " if row["jd_truncated"] else "untruncated, ") + state
         lines.append(
             f"{row['model']}: log10 J({label} deg) = {row['log10_j_median']:.2f} +- "
             f"{row['log10_j_std']:.2f} dex (median +- std; 95% upper "

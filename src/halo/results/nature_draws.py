@@ -1,4 +1,4 @@
-"""Per posterior draw of one model: Jacobi radius, tidal ratios, truncated J and D, survival.
+"""Per posterior draw of one model: Jacobi radius, tidal ratios and survival.
 
 Each draw of the model is paired with a draw of the tidal field
 (:func:`halo.results.tidal_site.tidal_site`): in a fit, every draw with the same pairing as its
