@@ -149,6 +149,8 @@ def _write_posterior(idata, der, jd_trunc, path):
     group = derived_group(der, idata["posterior"].sizes["chain"], jd_trunc)
     if group is not None:
         idata["derived"] = group
+    elif "derived" in idata.children:  # a reused posterior's earlier r_J no longer applies
+        idata = idata.drop_nodes("derived")
     with atomic_path(path) as tmp:
         idata.to_netcdf(str(tmp))
 
