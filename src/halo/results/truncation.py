@@ -16,6 +16,7 @@ import zlib
 
 import numpy as np
 
+from halo.core.errors import InputError
 from halo.core.vocabulary import HALO_TRUNCATION, angle_keys, jacobi_truncation_text
 from halo.results.tidal_site import tidal_site
 
@@ -37,6 +38,8 @@ def shared_tides(ctx, satellite, samples, settings, progress=None):
             model=getattr(satellite, "milky_way_model", None),
             progress=progress,
         )
+    except InputError:  # the user's input: a one-line error, as everywhere
+        raise
     except (ValueError, ArithmeticError) as exc:
         ctx["tides"] = {"site": None, "reason": f"no tidal field could be computed ({exc})"}
         return ctx["tides"]
