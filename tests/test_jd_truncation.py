@@ -294,3 +294,14 @@ def test_cli_flag_reaches_the_fit_settings(tmp_path, monkeypatch):
         with pytest.raises(SystemExit):
             main(fit_command(cat, sat_file, tmp_path / f"o{expect}", "nfw") + [flag, "--quiet"])
         assert seen["settings"].tidal_truncation is expect
+
+
+def test_statement_without_a_tidal_field_or_switched_off():
+    from halo.results.truncation import truncation_entry
+
+    reason = "no tidal field could be computed (test)"
+    none = truncation_entry({"site": None, "reason": reason}, True)
+    assert none["truncated"] is False and reason in none["statement"]
+    assert "untruncated" in none["statement"]
+    off = truncation_entry({"site": {}, "entry": {}}, False)
+    assert off["truncated"] is False and "--no-tidal-truncation" in off["statement"]

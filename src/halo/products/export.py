@@ -59,8 +59,12 @@ Accuracy of each numerical step
    (seeded), whose Monte Carlo error is std(J) / sqrt(n_template_draws) in J.
 4. Interpolation of the draw-averaged profile: cubic spline in (ln theta, ln dJ/dOmega); its error
    is measured at every grid midpoint against the direct mean and stored in header card INTERPER
-   (3e-9 for dJ/dOmega, 1.4e-9 for dD/dOmega of the NFW test haloes; larger, locally, where a
-   truncated halo's edge lies in the map).
+   (3e-9 for dJ/dOmega, 1.4e-9 for dD/dOmega of the NFW test haloes, untruncated). Where
+   truncated haloes' edges lie in the map (the default: each draw cut at its own r_J, so the mean
+   profile falls to zero over the spread of arcsin(r_J / d)) the largest relative error sits in
+   that faint tail and can reach 1 (a midpoint the spline puts beyond the last positive node);
+   card INTERPJ weights the error by each radius's share of J (D), |spline - mean| theta^2 summed
+   over the midpoints against mean theta^2: what the map as a whole carries.
 5. Pixel averages (the cusp): for the central pixel, the exact cone J of its inscribed circle
    (step 1 accuracy) plus the four corners by 32-node Gauss-Legendre quadrature in polar
    coordinates (r = h cosh t removes the square-root kink); pixels within

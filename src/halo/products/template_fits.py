@@ -90,6 +90,8 @@ def _template_cards(hdr, kind, values, omega, info, n_side):
     _held_cards(hdr, kind, total, info)
     hdr["HALFWID"] = (info["half_width"], "[deg] map half-width (to pixel edges)")
     hdr["INTERPER"] = (info["interp_err"], "max rel. error of the radial interpolation")
+    if "interp_weighted" in info:
+        hdr["INTERPJ"] = (info["interp_weighted"], f"the same, weighted by each radius's {kind}")
     hdr["CATSHA"] = info["catalogue_sha256"]  # the catalogue's sha256 (no room for a comment)
     hdr["RUNVER"] = (info["run_version"], "halo version of the fit")
     hdr["RUNDATE"] = (info["run_created"], "creation time of the fit")

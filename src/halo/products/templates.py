@@ -57,10 +57,15 @@ def _template(model, profiles, key, cone_key, tg):
         ) from None
     mids = np.exp(0.5 * (np.log(tg.grid[1:]) + np.log(tg.grid[:-1])))
     ok = f_mid > 0
-    interp_err = float(np.max(np.abs(spline(mids[ok]) / f_mid[ok] - 1.0)))
+    s_mid = spline(mids)
+    interp_err = float(np.max(np.abs(s_mid[ok] / f_mid[ok] - 1.0)))
+    # weighted by each midpoint's share of J (dOmega ~ theta^2 dln theta on the log grid): what a
+    # truncated halo's edge (where the mean profile falls to zero) costs the map as a whole
+    w = mids**2
+    interp_j = float(np.sum(np.abs(s_mid - f_mid) * w) / np.sum(np.abs(f_mid) * w))
     central = float(profiles[cone_key][:, 0].mean())
     values, omega = pixel_average_radial(spline, central, tg.n_side, tg.pixel_deg)
-    return values, omega, interp_err
+    return values, omega, (interp_err, interp_j)
 
 
 def _pick(n_post, n_template_draws, seed):
@@ -164,7 +169,8 @@ def template_writers(name, spec, satellite, summary, draws, opts, floor_deg, whe
             "ref_deg": float(np.median(prof["ref_deg"])),
             "default": opts.half_width_deg is None,
             "half_width": float(tg.half_edges),
-            "interp_err": ierr,
+            "interp_err": ierr[0],
+            "interp_weighted": ierr[1],
             "catalogue_sha256": summary["catalogue"]["sha256"],
             "run_version": summary["version"],
             "run_created": summary["created"],
