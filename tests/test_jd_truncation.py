@@ -248,6 +248,7 @@ def test_export_cuts_at_the_fits_jacobi_radius(runs):
     for path in (exp / "nfw_dj_domega.fits", exp / "nfw_dd_domega.fits"):
         hdr = fits.getheader(path)
         assert hdr["TRUNC"] == "JACOBI" and hdr["TRUNCATD"] is True
+        assert 0.0 <= hdr["INTERPJ"] < 0.01  # the J- (D-)weighted interpolation error
         assert "Jacobi radius" in " ".join(str(c) for c in hdr["COMMENT"])
     # the whole halo of the J map is the halo inside r_J: its cone is arcsin(r_J / d)
     hdr = fits.getheader(exp / "nfw_dj_domega.fits")
