@@ -54,6 +54,22 @@ MockBinaries = Annotated[
     bool,
     typer.Option("--binaries/--no-binaries", help="binaries in the mocks and in the fitted model"),
 ]
+MOCK_PERIODS_HELP = (
+    "MEAN,SIGMA of log10 P [day]: the mocks' binary periods only (the fits keep the spec's): a "
+    "robustness run on binaries the model does not assume"
+)
+MOCK_FIELD_HELP = (
+    "OFFSET:SIGMA:WEIGHT[,...] [km/s]: the mocks' field-star velocity components (offset from "
+    "v_sys); default 50:40:0.6,-30:90:0.4, a two-component field the fit's one Gaussian does "
+    "not assume"
+)
+MockPeriods = Annotated[
+    str | None,
+    typer.Option("--mock-binary-periods", metavar="MEAN,SIGMA", help=MOCK_PERIODS_HELP),
+]
+MockField = Annotated[
+    str | None, typer.Option("--mock-field", metavar="COMPONENTS", help=MOCK_FIELD_HELP)
+]
 Foreground = Annotated[
     bool | None,
     typer.Option(
@@ -72,6 +88,38 @@ def _v_sys_prior(text):
     except ValueError:
         fail(f"--v-sys-prior: expected MEAN,SIGMA [km/s], got {text!r}")
     return mean, sigma
+
+
+def _numbers(text, flag, shape, n_parts):
+    """Floats of ``text`` split by ``,`` (and ``:`` inside each part); one-line error naming
+    ``flag`` and the expected ``shape`` otherwise."""
+    from halo.cli.options import fail
+
+    try:
+        parts = [[float(x) for x in part.split(":")] for part in text.split(",")]
+    except ValueError:
+        fail(f"--{flag}: expected {shape}, got {text!r}")
+    if any(len(p) != n_parts for p in parts) or (n_parts == 1 and len(parts) != 2):
+        fail(f"--{flag}: expected {shape}, got {text!r}")
+    return parts
+
+
+def _mock_field(text):
+    """The field components (offset, sigma, weight) of ``--mock-field``, or None."""
+    from halo.cli.options import fail
+
+    if text is None:
+        return None
+    comps = _numbers(text, "mock-field", "OFFSET:SIGMA:WEIGHT[,...] [km/s]", 3)
+    if any(sigma <= 0 or weight <= 0 for _, sigma, weight in comps):
+        fail(f"--mock-field: every SIGMA and WEIGHT must be positive, got {text!r}")
+    return tuple(tuple(c) for c in comps)
+
+
+def _mock_periods(text):
+    if text is None:
+        return None
+    return tuple(p[0] for p in _numbers(text, "mock-binary-periods", "MEAN,SIGMA", 1))
 
 
 def _command_line(ctx, command="calibrate", argument="spec"):
@@ -112,6 +160,8 @@ def calibrate_cmd(
     binaries: MockBinaries = True,
     foreground: Foreground = None,
     anisotropy: Anisotropy = None,
+    mock_binary_periods: MockPeriods = None,
+    mock_field: MockField = None,
     quiet: Quiet = False,
 ):
     """Simulation-based calibration: truths from the spec's prior, their mocks fitted on a Dask
@@ -123,15 +173,10 @@ def calibrate_cmd(
 
     check_cluster_options(scheduler, workers)
     design = SbcDesign(
-        spec,
-        mocks,
-        stars,
-        seed=seed,
-        binaries=binaries,
-        foreground_max=foreground_max,
-        epochs=epochs,
-        anisotropy=anisotropy,
-    )
+        spec, mocks, stars, seed=seed, binaries=binaries, foreground_max=foreground_max,
+        epochs=epochs, anisotropy=anisotropy, mock_periods=_mock_periods(mock_binary_periods),
+        mock_field=_mock_field(mock_field),
+    )  # fmt: skip
     settings = fit_settings(chains, warmup, draws, seed, binaries, foreground, anisotropy)
     result = run_calibration(
         design,

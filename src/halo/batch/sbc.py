@@ -59,7 +59,12 @@ class SbcDesign:
     """What a calibration simulates: ``spec`` (name or path), ``n_mocks``, ``n_stars`` (members
     and field stars), ``seed``, ``binaries`` (members with binaries of the drawn fraction),
     ``foreground_max`` (largest field-star fraction; 0: none), ``epochs`` (1 or more, a year
-    apart), ``anisotropy`` (a kind replacing the spec's, as `--anisotropy`)."""
+    apart), ``anisotropy`` (a kind replacing the spec's, as `--anisotropy`).
+
+    Robustness runs simulate mocks the fitted model does not assume: ``mock_periods`` (mean,
+    sigma) of log10 of the binaries' periods [day] in the mocks only (the fits keep the spec's
+    population), ``mock_field`` the field's velocity components ((offset from v_sys, sigma,
+    weight) [km/s]; default the generator's two-component field)."""
 
     def __init__(
         self,
@@ -72,6 +77,8 @@ class SbcDesign:
         foreground_max=0.2,
         epochs=1,
         anisotropy=None,
+        mock_periods=None,
+        mock_field=None,
     ):
         if n_mocks < 1:
             raise InputError(f"--mocks: expected a positive number, got {n_mocks!r}")
@@ -85,6 +92,12 @@ class SbcDesign:
         self.binaries, self.foreground_max, self.epochs = binaries, foreground_max, epochs
         self.anisotropy = anisotropy
         self.spec = with_anisotropy(load_spec(spec), anisotropy)
+        self.mock_periods, self.mock_field = _checked_periods(mock_periods), mock_field
+        pop = self.spec.binary_population()
+        if self.mock_periods is not None:
+            mean, sigma = self.mock_periods
+            pop = pop.clone(log_period_mean=mean, log_period_sigma=sigma)
+        self.mock_population = pop
 
     def as_dict(self):
         return {
@@ -98,7 +111,34 @@ class SbcDesign:
             "epochs": self.epochs,
             "anisotropy": self.anisotropy,
             "error_range_kms": list(ERROR_RANGE_KMS),
+            "mock_binary_periods": None if self.mock_periods is None else list(self.mock_periods),
+            "mock_field": None if self.mock_field is None else [list(c) for c in self.mock_field],
+            "model_violations": self.violations(),
         }
+
+    def violations(self):
+        """What the mocks have that the fitted model does not assume (plain words)."""
+        out = ["field stars from the mock generator's field, not the fit's one Gaussian"]
+        if self.mock_field is not None:
+            out[0] = f"field stars from the components {[list(c) for c in self.mock_field]}"
+        if self.mock_periods is not None:
+            out.append(
+                "binary periods log10 P/d ~ N({:g}, {:g}) in the mocks, the spec's in the "
+                "fits".format(*self.mock_periods)
+            )
+        return out
+
+
+def _checked_periods(periods):
+    if periods is None:
+        return None
+    mean, sigma = (float(x) for x in periods)
+    if not (-1.0 < mean < 10.0 and 0.0 < sigma < 5.0):
+        raise InputError(
+            f"--mock-binary-periods: expected MEAN,SIGMA of log10 P [day] with -1 < MEAN < 10 "
+            f"and 0 < SIGMA < 5, got {mean:g},{sigma:g}"
+        )
+    return mean, sigma
 
 
 def prior_draws(spec, satellite, n, seed=0, binaries=True):
@@ -206,8 +246,9 @@ def _one_mock(design, sat, draw, rng, index):
         seed=int(rng.integers(2**31)),
         epochs_mjd=epochs,
         binary_fraction=f_b,
-        binary_population=design.spec.binary_population(),
+        binary_population=design.mock_population,
         n_foreground=n_fg,
+        foreground_components=design.mock_field,
     )
     extras = {
         "prior_draw": draw,

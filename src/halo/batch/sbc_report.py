@@ -180,6 +180,7 @@ def format_calibration(result, out_dir):
         f"calibrate: {result['n_done']} of {result['design']['n_mocks']} mocks fitted "
         f"(ranks among L = {result['n_rank_draws']} draws)"
     ]
+    lines += [f"  mocks: {v}" for v in result["design"].get("model_violations") or []]
     for q in result["quantities"].values():
         if not q.get("n"):
             continue
