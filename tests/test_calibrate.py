@@ -173,6 +173,12 @@ def test_false_dark_matter_of_a_stars_only_calibration(tmp_path):
         (["--rank-draws", "500"], "--rank-draws"),
         (["--v-sys-prior", "87"], "--v-sys-prior"),
         (["--foreground-max", "1.5"], "--foreground-max"),
+        # robustness mocks (tests/test_calibrate_robustness.py)
+        (["--mock-binary-periods", "5"], "--mock-binary-periods"),
+        (["--mock-binary-periods", "5,x"], "--mock-binary-periods"),
+        (["--mock-binary-periods", "5,0"], "--mock-binary-periods"),
+        (["--mock-field", "10:20"], "--mock-field"),
+        (["--mock-field", "10:-20:1"], "--mock-field"),
     ],
 )
 def test_bad_options_are_one_line_and_exit_2(tmp_path, extra, flag, capsys):

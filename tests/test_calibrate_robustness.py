@@ -88,20 +88,3 @@ def test_the_cli_options_reach_the_mocks(tmp_path, monkeypatch, capsys):
     assert design.mock_population.log_period_sigma == 1.2
     assert design.mock_field == ((20.0, 30.0, 0.7), (-40.0, 80.0, 0.3))
     assert any("N(3.5, 1.2)" in v for v in design.violations())
-
-
-@pytest.mark.parametrize(
-    "extra, flag",
-    [
-        (["--mock-binary-periods", "5"], "--mock-binary-periods"),
-        (["--mock-binary-periods", "5,x"], "--mock-binary-periods"),
-        (["--mock-binary-periods", "5,0"], "--mock-binary-periods"),
-        (["--mock-field", "10:20"], "--mock-field"),
-        (["--mock-field", "10:-20:1"], "--mock-field"),
-    ],
-)
-def test_bad_robustness_options_are_one_line_and_exit_2(tmp_path, extra, flag, capsys):
-    code = main(["calibrate", "nfw", "--out", str(tmp_path / "o"), *TINY, *extra])
-    err = capsys.readouterr().err.strip()
-    assert code == 2 and flag in err and "\n" not in err and "Traceback" not in err
-    assert not (tmp_path / "o" / "fits").exists()
