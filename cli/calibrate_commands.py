@@ -197,7 +197,10 @@ def calibrate_cmd(
         raise typer.Exit(1)
 
 
-FOLDER_HELP = "a `halo fit` output folder (summary.json, members.ecsv, <model>/posterior.nc)"
+FOLDER_HELP = (
+    "a `halo fit` output folder (summary.json, members.ecsv, <model>/posterior.nc), or a "
+    "workspace (its latest run)"
+)
 PLAN_HELP = (
     "an observing plan (repeatable, in the order to compare): +N (N more stars), epochs (one more "
     "epoch of the --epoch-stars a year after the catalogue's last epoch, or after the fit's date "
@@ -235,6 +238,22 @@ def _new_errors(text):
     if err is not None and (len(err) != 2 or not 0 < err[0] <= err[1]):
         fail("--new-errors: expected LO,HI [km/s] with 0 < LO <= HI")
     return None if err is None else (err[0], err[1])
+
+
+def _run_folder(folder, quiet):
+    """A fit output folder as given, or a workspace's latest run (said on stderr)."""
+    from pathlib import Path
+
+    from halo.workspace.record import DB_NAME
+    from halo.workspace.views import latest_run_folder
+
+    src = Path(folder)
+    if not (src / DB_NAME).is_file():
+        return src
+    run = latest_run_folder(src)
+    if not quiet:
+        typer.echo(f"forecast from the workspace's latest run: {run}", err=True)
+    return run
 
 
 def forecast_cmd(
@@ -277,7 +296,7 @@ def forecast_cmd(
     plans = [parse_plan(p) for p in plan]
     settings = fit_settings(chains, warmup, draws, seed, binaries, foreground, None)
     result = run_forecast(
-        folder,
+        _run_folder(folder, quiet),
         out,
         plans,
         settings=settings,

@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 
 from halo.cli.app import main
+from halo.core.errors import InputError
 from halo.inputs.satellite import read_satellite
 from halo.mock.catalogue import make_mock
 from halo.physics.cosmology import rho_crit
@@ -198,3 +199,29 @@ def test_export_latest_run(workspace, tmp_path, capsys):
                 assert row[col] == pytest.approx(q[k], rel=1e-13)
     assert (out / "nfw_dj_domega.fits").is_file() and (out / "summary.json").is_file()
     assert main(["export", str(root), "--out", str(out)]) == 2  # never overwrites
+
+
+def test_forecast_from_a_workspace_uses_its_latest_run(workspace, tmp_path, capsys, monkeypatch):
+    """`halo forecast WORKSPACE` forecasts from the latest run, keeping the stars of the catalogue
+    version that run fitted (the fits themselves are stopped before they start: the forecast
+    tests run them)."""
+    from astropy.table import Table
+
+    import halo.batch.forecast_report as forecast_report
+
+    def stop(*args, **kwargs):
+        raise InputError("stopped before the future fits (test)")
+
+    monkeypatch.setattr(forecast_report, "run_batch", stop)
+    root, _ = workspace
+    out = tmp_path / "fc"
+    code = main(["forecast", str(root), "--out", str(out), "--plan", "+5",
+                 "--draws-per-plan", "1", "--workers", "1"])  # fmt: skip
+    err = capsys.readouterr().err
+    assert code == 2 and "stopped before the future fits" in err
+    assert "latest run" in err and "runs/0004" in err
+    run = json.loads((root / "runs" / "0004" / "summary.json").read_text())
+    mocks = sorted((out / "mocks").glob("*.ecsv"))
+    assert len(mocks) == 1
+    future = Table.read(mocks[0], format="ascii.ecsv")
+    assert len(future) == run["catalogue"]["n_rows"] + 5
