@@ -102,6 +102,8 @@ def test_the_calibration_files_and_ranks(nfw_run):
     assert res["n_done"] == 3 and res["n_rank_draws"] == L and res["ranked_model"] == "nfw"
     assert res["command"].startswith("halo calibrate nfw --out ")
     assert set(res["quantities"]) == {"m_half_msun", "log10_j_0.5deg", "f_binary", "v_sys_kms"}
+    # diagnostics: the sampled parameters of models/nfw.toml and the nuisances
+    assert {"log10_m200", "log10_c200", "beta_sym", "distance"} <= set(res["sampled_parameters"])
     idx = np.floor(np.arange(L) * (100 / L)).astype(int)  # L evenly spaced of the 100 draws
     for e in res["entries"]:
         assert all(0 <= r <= L for r in e["ranks"].values())
@@ -163,6 +165,28 @@ def test_false_dark_matter_of_a_stars_only_calibration(tmp_path):
         assert fdm[f"gt_{t}"]["upper_95"] == pytest.approx(ci.high, abs=1e-9)
     assert "ln_b_nfw" in Table.read(out / "calibration.ecsv").colnames
     assert "false dark matter (nfw)" in stdout
+    # diagnostics: every sampled parameter of the stars-only prior (halo.inference.model's sample
+    # sites: the demo satellite gives a stellar mass, so m_star_d0; models/stars-only.toml's
+    # constant anisotropy; no f_binary without binaries)
+    params = res["sampled_parameters"]
+    assert list(params) == ["v_sys", "distance", "r_half_pc", "m_star_d0", "beta_sym"]
+    idx = np.floor(np.arange(L) * (100 / L)).astype(int)  # L evenly spaced of the 100 draws
+    for i, e in enumerate(res["entries"]):
+        post = az.from_netcdf(str(out / "fits" / e["name"] / "stars-only" / "posterior.nc"))
+        for site in params:
+            draws = np.asarray(post["posterior"][site].values).reshape(-1)[idx]
+            truth = e["parameter_truth"][site]
+            # the rank recounted: draws below the truth (Talts et al. 2018, Algorithm 1)
+            assert e["parameter_ranks"][site] == int(np.sum(draws < truth)), site
+            assert params[site]["ranks"][i] == e["parameter_ranks"][site]
+    assert (
+        e["parameter_truth"]["distance"]
+        == json.loads((out / "mocks" / f"{e['name']}.truth.json").read_text())["prior_draw"][
+            "distance"
+        ]
+    )
+    assert "rank_parameter_distance" in Table.read(out / "calibration.ecsv").colnames
+    assert "sampled parameters (diagnostics" in stdout and "r_half_pc " in stdout
 
 
 @pytest.mark.parametrize(

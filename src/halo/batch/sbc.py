@@ -41,6 +41,7 @@ from halo.mock.files import mock_from_spec, truth_record
 __all__ = [
     "SbcDesign",
     "prior_draws",
+    "sampled_sites",
     "calibration_satellite",
     "satellite_toml",
     "write_mocks",
@@ -141,22 +142,13 @@ def _checked_periods(periods):
     return mean, sigma
 
 
-def prior_draws(spec, satellite, n, seed=0, binaries=True):
-    """{site: array (n,)} of the fit's prior (see the module notes); ``satellite`` must carry a
-    v_sys prior (``v_sys_err_kms`` > 0), else InputError."""
-    import jax
+def _prior(spec, satellite, binaries):
+    """The fit's prior as a numpyro model without data (see the module notes)."""
     import jax.numpy as jnp
     import numpyro
     import numpyro.distributions as dist
-    from numpyro.infer import Predictive
 
     from halo.inference.model import sample_nuisances, sample_spec_parameters
-
-    if not (satellite.v_sys_err_kms or 0) > 0 or satellite.v_sys_kms is None:
-        raise InputError(
-            f"{satellite.source}: key 'v_sys_err_kms': calibration needs a v_sys prior that "
-            "does not depend on the data (give v_sys_kms and v_sys_err_kms > 0)"
-        )
 
     def prior():
         sample_nuisances(satellite, jnp.asarray(satellite.v_sys_kms))
@@ -164,8 +156,39 @@ def prior_draws(spec, satellite, n, seed=0, binaries=True):
         if binaries:
             numpyro.sample("f_binary", dist.Uniform(*spec.binary_fraction_range))
 
+    return prior
+
+
+def _check_v_sys_prior(satellite):
+    if not (satellite.v_sys_err_kms or 0) > 0 or satellite.v_sys_kms is None:
+        raise InputError(
+            f"{satellite.source}: key 'v_sys_err_kms': calibration needs a v_sys prior that "
+            "does not depend on the data (give v_sys_kms and v_sys_err_kms > 0)"
+        )
+
+
+def prior_draws(spec, satellite, n, seed=0, binaries=True):
+    """{site: array (n,)} of the fit's prior (see the module notes); ``satellite`` must carry a
+    v_sys prior (``v_sys_err_kms`` > 0), else InputError."""
+    import jax
+    from numpyro.infer import Predictive
+
+    _check_v_sys_prior(satellite)
+    prior = _prior(spec, satellite, binaries)
     out = Predictive(prior, num_samples=int(n))(jax.random.PRNGKey(int(seed)))
     return {k: np.asarray(v, dtype=float) for k, v in out.items()}
+
+
+def sampled_sites(spec, satellite, binaries=True):
+    """The names of the prior's sample sites (the parameters the sampler moves, e.g.
+    ``log10_m200``, not their deterministic transforms such as ``m200``), in model order."""
+    import jax
+    from numpyro import handlers
+
+    _check_v_sys_prior(satellite)
+    prior = _prior(spec, satellite, binaries)
+    tr = handlers.trace(handlers.seed(prior, jax.random.PRNGKey(0))).get_trace()
+    return [k for k, v in tr.items() if v["type"] == "sample"]
 
 
 def _toml_value(v):

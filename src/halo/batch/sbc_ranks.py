@@ -16,14 +16,23 @@ from halo.batch.calibration import (
     exceedance_rate,
     interval_coverage,
     ks_uniformity,
+    rank_histogram,
     sbc_ranks,
     thin_draws,
 )
+from halo.batch.sbc import sampled_sites
 from halo.core.vocabulary import STANDARD_ANGLES, STARS_ONLY
 from halo.products.rundir import load_posterior
 from halo.results.derived import derive
 
-__all__ = ["QUANTITIES", "quantities_of", "draw_values", "collect_ranks", "rank_statistics"]
+__all__ = [
+    "QUANTITIES",
+    "quantities_of",
+    "draw_values",
+    "collect_ranks",
+    "rank_statistics",
+    "parameter_statistics",
+]
 
 #: key -> (label, unit) of the ranked quantities
 QUANTITIES = {
@@ -84,6 +93,7 @@ def collect_ranks(spec, satellite, truths, records, fits_dir, model, n_keep, bin
     convergence and ln B of every dark model fitted. Returns (keys, rows) in mock order; a mock
     whose fit failed has ``status`` "failed" and no ranks."""
     keys = quantities_of(spec, binaries)
+    sites = sampled_sites(spec, satellite, binaries)
     truth_draws = {
         k: np.array([t["prior_draw"][k] for t in truths]) for k in truths[0]["prior_draw"]
     }
@@ -94,12 +104,19 @@ def collect_ranks(spec, satellite, truths, records, fits_dir, model, n_keep, bin
         row["truth"] = {k: float(truth_vals[k][i]) for k in keys}
         row["foreground_fraction"] = t["foreground_fraction"]
         row["n_binaries"] = t["n_binaries"]
+        row["parameter_truth"] = {k: float(t["prior_draw"][k]) for k in sites}
         if rec["status"] == "done":
-            draws = draw_values(
-                spec, satellite, _entry_draws(fits_dir / t["name"], model, n_keep), keys
-            )
+            thinned = _entry_draws(fits_dir / t["name"], model, n_keep)
+            draws = draw_values(spec, satellite, thinned, keys)
             row["ranks"] = {
                 k: int(sbc_ranks([row["truth"][k]], draws[k][None, :])[0]) for k in keys
+            }
+            # diagnostics: every sampled parameter's own rank (which one a failed quantity
+            # inherits its miscalibration from)
+            row["parameter_ranks"] = {
+                k: int(sbc_ranks([row["parameter_truth"][k]], thinned[k][None, :])[0])
+                for k in sites
+                if k in thinned
             }
             row["converged"] = bool(rec.get("converged"))
             row["ln_b"] = _ln_b(rec, [m for m in rec.get("models") or {} if m != STARS_ONLY])
@@ -111,8 +128,6 @@ def _q_stats(ranks, n_keep, n_bins, seed):
     chi2, p_chi2 = chi_square_uniformity(ranks, n_keep, n_bins)
     ks, p_ks = ks_uniformity(ranks, n_keep, seed=seed)
     cov = interval_coverage(ranks, n_keep)
-    from halo.batch.calibration import rank_histogram
-
     return {
         "n": int(ranks.size),
         "ranks": [int(r) for r in ranks],
@@ -142,6 +157,18 @@ def rank_statistics(keys, rows, n_keep, n_bins, seed=0):
         ranks = np.array([r["ranks"][k] for r in done], dtype=int)
         stats = _q_stats(ranks, n_keep, n_bins, seed) if ranks.size else {"n": 0}
         out[k] = {"label": label, "unit": unit, **stats}
+    return out
+
+
+def parameter_statistics(rows, n_keep, n_bins, seed=0):
+    """{site: n, ranks, histogram, chi2, ks, uniform_at_0.01, coverage} of every sampled
+    parameter of the ranked model (diagnostics beside the reported quantities)."""
+    done = [r for r in rows if "parameter_ranks" in r]
+    sites = [k for k in (done[0]["parameter_ranks"] if done else {})]
+    out = {}
+    for k in sites:
+        ranks = np.array([r["parameter_ranks"][k] for r in done], dtype=int)
+        out[k] = _q_stats(ranks, n_keep, n_bins, seed)
     return out
 
 

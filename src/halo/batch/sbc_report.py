@@ -14,7 +14,12 @@ from astropy.table import Table
 from halo.batch.runner import _check_out_dir, run_batch
 from halo.batch.sbc import write_mocks
 from halo.batch.sbc_figure import rank_figure
-from halo.batch.sbc_ranks import collect_ranks, false_dark_matter, rank_statistics
+from halo.batch.sbc_ranks import (
+    collect_ranks,
+    false_dark_matter,
+    parameter_statistics,
+    rank_statistics,
+)
 from halo.core.errors import InputError
 from halo.core.fileio import write_ecsv, write_json
 from halo.core.vocabulary import DEFAULT_MODELS, STARS_ONLY
@@ -60,6 +65,8 @@ def _ecsv(rows, keys, fdm_models):
     for k in keys:
         cols[f"truth_{k}"] = [r["truth"][k] for r in rows]
         cols[f"rank_{k}"] = [r["ranks"][k] if "ranks" in r else -1 for r in rows]
+    for k in next((r["parameter_ranks"] for r in rows if "parameter_ranks" in r), {}):
+        cols[f"rank_parameter_{k}"] = [(r.get("parameter_ranks") or {}).get(k, -1) for r in rows]
     cols["foreground_fraction"] = [r["foreground_fraction"] for r in rows]
     cols["n_binaries"] = [r["n_binaries"] for r in rows]
     for m in fdm_models:
@@ -80,6 +87,9 @@ def _result(design, stats, rows, extra):
         "failed": failed,
         "unconverged": [r["name"] for r in rows if "ranks" in r and not r["converged"]],
         "quantities": stats,
+        "sampled_parameters": parameter_statistics(
+            rows, extra["n_rank_draws"], extra["n_bins"], seed=design.seed
+        ),
         "false_dark_matter": fdm,
         "entries": rows,
     }
@@ -190,6 +200,15 @@ def format_calibration(result, out_dir):
             f"  {q['label']}: chi2 p = {q['chi2']['p_value']:.3g}, KS p = "
             f"{q['ks']['p_value']:.3g}, coverage 68% {c68:.2f}, 95% {c95:.2f}{flag}"
         )
+    params = result.get("sampled_parameters") or {}
+    if params:
+        lines.append("  sampled parameters (diagnostics; KS p / 68% coverage, ! not uniform):")
+        cells = [
+            f"{k} {q['ks']['p_value']:.2g}/{q['coverage']['0.68']['fraction']:.2f}"
+            + ("!" if not q["uniform_at_0.01"] else "")
+            for k, q in params.items()
+        ]
+        lines += ["    " + ", ".join(cells[i : i + 4]) for i in range(0, len(cells), 4)]
     for m, f in (result.get("false_dark_matter") or {}).items():
         if f["n"]:
             lines.append(
