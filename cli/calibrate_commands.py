@@ -63,6 +63,14 @@ MOCK_FIELD_HELP = (
     "v_sys); default 50:40:0.6,-30:90:0.4, a two-component field the fit's one Gaussian does "
     "not assume"
 )
+MOCK_FLATTENING_HELP = (
+    "Q: the mocks' stars from an oblate tracer of intrinsic axis ratio Q, inclined so that its "
+    "image has the satellite's ellipticity (Q <= 1 - e); the fits stay spherical"
+)
+MockFlattening = Annotated[
+    float | None,
+    typer.Option("--mock-flattening", metavar="Q", help=MOCK_FLATTENING_HELP),
+]
 MockPeriods = Annotated[
     str | None,
     typer.Option("--mock-binary-periods", metavar="MEAN,SIGMA", help=MOCK_PERIODS_HELP),
@@ -162,6 +170,7 @@ def calibrate_cmd(
     anisotropy: Anisotropy = None,
     mock_binary_periods: MockPeriods = None,
     mock_field: MockField = None,
+    mock_flattening: MockFlattening = None,
     quiet: Quiet = False,
 ):
     """Simulation-based calibration: truths from the spec's prior, their mocks fitted on a Dask
@@ -175,7 +184,7 @@ def calibrate_cmd(
     design = SbcDesign(
         spec, mocks, stars, seed=seed, binaries=binaries, foreground_max=foreground_max,
         epochs=epochs, anisotropy=anisotropy, mock_periods=_mock_periods(mock_binary_periods),
-        mock_field=_mock_field(mock_field),
+        mock_field=_mock_field(mock_field), mock_flattening=mock_flattening,
     )  # fmt: skip
     settings = fit_settings(chains, warmup, draws, seed, binaries, foreground, anisotropy)
     result = run_calibration(

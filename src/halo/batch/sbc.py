@@ -65,7 +65,9 @@ class SbcDesign:
     Robustness runs simulate mocks the fitted model does not assume: ``mock_periods`` (mean,
     sigma) of log10 of the binaries' periods [day] in the mocks only (the fits keep the spec's
     population), ``mock_field`` the field's velocity components ((offset from v_sys, sigma,
-    weight) [km/s]; default the generator's two-component field)."""
+    weight) [km/s]; default the generator's two-component field), ``mock_flattening`` the
+    intrinsic axis ratio q of an oblate tracer seen at the inclination that gives the satellite's
+    ellipticity (:mod:`halo.mock.flattened`; the fits stay spherical)."""
 
     def __init__(
         self,
@@ -80,6 +82,7 @@ class SbcDesign:
         anisotropy=None,
         mock_periods=None,
         mock_field=None,
+        mock_flattening=None,
     ):
         if n_mocks < 1:
             raise InputError(f"--mocks: expected a positive number, got {n_mocks!r}")
@@ -94,6 +97,12 @@ class SbcDesign:
         self.anisotropy = anisotropy
         self.spec = with_anisotropy(load_spec(spec), anisotropy)
         self.mock_periods, self.mock_field = _checked_periods(mock_periods), mock_field
+        if mock_flattening is not None and not 0.0 < mock_flattening <= 1.0:
+            raise InputError(
+                f"--mock-flattening: expected an intrinsic axis ratio in (0, 1], got "
+                f"{mock_flattening!r}"
+            )
+        self.mock_flattening = mock_flattening
         pop = self.spec.binary_population()
         if self.mock_periods is not None:
             mean, sigma = self.mock_periods
@@ -114,6 +123,7 @@ class SbcDesign:
             "error_range_kms": list(ERROR_RANGE_KMS),
             "mock_binary_periods": None if self.mock_periods is None else list(self.mock_periods),
             "mock_field": None if self.mock_field is None else [list(c) for c in self.mock_field],
+            "mock_flattening": self.mock_flattening,
             "model_violations": self.violations(),
         }
 
@@ -126,6 +136,11 @@ class SbcDesign:
             out.append(
                 "binary periods log10 P/d ~ N({:g}, {:g}) in the mocks, the spec's in the "
                 "fits".format(*self.mock_periods)
+            )
+        if self.mock_flattening is not None:
+            out.append(
+                f"an oblate tracer of intrinsic axis ratio {self.mock_flattening:g} (inclined to "
+                "the satellite's ellipticity) in the mocks, a spherical one in the fits"
             )
         return out
 
@@ -272,6 +287,7 @@ def _one_mock(design, sat, draw, rng, index):
         binary_population=design.mock_population,
         n_foreground=n_fg,
         foreground_components=design.mock_field,
+        flattening=design.mock_flattening,
     )
     extras = {
         "prior_draw": draw,

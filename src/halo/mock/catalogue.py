@@ -48,11 +48,13 @@ from astropy.table import Table
 from halo.core.errors import InputError
 from halo.inputs.satellite import Satellite, parse_satellite
 from halo.mock.binaries_epochs import observe_members, population
+from halo.mock.flattened import flattened_phase_space, flattening_for
 from halo.mock.foreground import with_foreground
 from halo.mock.metallicity import with_metallicities
 from halo.mock.positions import sample_positions
 from halo.mock.sky import ellipse_offsets, sky_coordinates
 from halo.mock.velocities import (
+    MethodChoice,
     choose_method,
     line_of_sight_velocity,
     sample_velocities_df,
@@ -124,6 +126,24 @@ def _model(satellite, dark, stellar_mass, anisotropy):
     return _Model(sat, light, m_star, dark, anis, mass_model)
 
 
+def _flattened_phase_space(model, n_stars, rng, method, q):
+    """(positions, velocities, MethodChoice, flattening truth) of the oblate tracer of intrinsic
+    axis ratio ``q`` (:mod:`halo.mock.flattened`), beta_z the model's beta at r_1/2."""
+    if method == "df":
+        raise InputError("mock: a flattened tracer has Gaussian velocities only, not method 'df'")
+    sat = model.sat
+    beta_z = float(model.anisotropy.beta(model.light.r_half_3d()))
+    flat = flattening_for(q, sat.ellipticity, beta_z)
+    light_major = sat.light(sat.r_half_pc * 1e-3)
+    pos, vel, n_negative = flattened_phase_space(model.mass, light_major, flat, n_stars, rng)
+    reason = (
+        "flattened tracer: Gaussians with the axisymmetric Jeans moments (sigma_R = sigma_z "
+        "sqrt(1 / (1 - beta_z)), beta_z the model's beta at r_1/2)"
+    )
+    truth = {**flat.as_dict(), "n_negative_vphi2": n_negative}
+    return pos, vel, MethodChoice("gaussian", reason, None), truth
+
+
 def _phase_space(model, n_stars, rng, method, df_options, allow_unphysical):
     """(positions, velocities, the method's :class:`halo.mock.velocities.MethodChoice`)."""
     pos = sample_positions(model.light, n_stars, rng)
@@ -192,7 +212,10 @@ def _member_table(obs, ra, dec):
     return table
 
 
-def _star_truth(pos, vel, xi, eta, v_true, obs, ellipticity):
+def _star_truth(pos, vel, xi, eta, v_true, obs, ellipticity, on_sky_ellipse=False):
+    q = 1.0 - ellipticity
+    # (x, y) already the image's major and minor axes, or the spherical model's projection
+    r_ell = np.hypot(pos.x, pos.y / q) if on_sky_ellipse else pos.R / math.sqrt(q)
     return Table(
         {
             "id": np.arange(pos.r.size),
@@ -201,7 +224,7 @@ def _star_truth(pos, vel, xi, eta, v_true, obs, ellipticity):
             "z": pos.z,
             "r": pos.r,
             "R": pos.R,
-            "R_ell": pos.R / math.sqrt(1.0 - ellipticity),
+            "R_ell": r_ell,
             "xi": xi,
             "eta": eta,
             "v_r": vel.v_r,
@@ -237,6 +260,7 @@ def make_mock(
     foreground_components=None,
     field_radius_pc=None,
     metallicity=None,
+    flattening=None,
 ):
     """Mock velocity catalogue of a satellite with a known truth.
 
@@ -280,6 +304,11 @@ def make_mock(
     metallicity : None, or a :class:`halo.mock.metallicity.MockMetallicity`: ``feh`` and
         ``feh_err`` columns [dex] drawn from its own random stream (the kinematics stay as
         without it), ``truth["metallicity"]`` and the members' ``feh_true`` in ``stars``
+    flattening : None (a spherical tracer), or the intrinsic axis ratio q <= 1 - e of an oblate
+        tracer seen at the inclination that gives the satellite's ellipticity e, with Gaussian
+        velocities from the axisymmetric Jeans equations in the spherical potential
+        (:mod:`halo.mock.flattened`; a light profile the spherical fit does not assume);
+        ``truth["flattening"]`` records q, the inclination and beta_z
 
     Returns
     -------
@@ -304,10 +333,17 @@ def make_mock(
     if seed is None:
         seed = int(np.random.SeedSequence().entropy)
     rng = np.random.default_rng(seed)
-    pos, vel, choice = _phase_space(model, n_stars, rng, method, df_options, allow_unphysical)
+    flat_truth = None
+    if flattening is None:
+        pos, vel, choice = _phase_space(model, n_stars, rng, method, df_options, allow_unphysical)
+        xi, eta = ellipse_offsets(pos.x, pos.y, sat.ellipticity, sat.position_angle_deg)
+    else:  # already elliptical on the sky (x the major axis): rotated to the PA only
+        pos, vel, choice, flat_truth = _flattened_phase_space(
+            model, n_stars, rng, method, flattening
+        )
+        xi, eta = ellipse_offsets(pos.x, pos.y, 0.0, sat.position_angle_deg)
     df_physical = None if choice.df is None else choice.df.is_physical
     v_true = line_of_sight_velocity(pos, vel)
-    xi, eta = ellipse_offsets(pos.x, pos.y, sat.ellipticity, sat.position_angle_deg)
     ra, dec = sky_coordinates(xi, eta, sat.ra_deg, sat.dec_deg, sat.distance_kpc)
     obs = observe_members(
         rng, v_true, v_sys, err_range, epochs_mjd, velocity_offsets=velocity_offsets,
@@ -323,6 +359,8 @@ def make_mock(
     n_binaries = int(obs.is_binary.sum())
     used = {"method_used": choice.method, "method_reason": choice.reason}
     truth = {**settings, **used, "n_binaries": n_binaries, **_model_truth(model, df_physical)}
+    if flat_truth is not None:
+        truth["flattening"] = flat_truth
     table = _member_table(obs, ra, dec)
     if n_foreground > 0:
         table = with_foreground(
@@ -331,7 +369,7 @@ def make_mock(
             epochs_mjd=epochs_mjd, repeat_fraction=repeat_fraction, id0=n_stars,
         )  # fmt: skip
     table.meta["truth"] = truth
-    stars = _star_truth(pos, vel, xi, eta, v_true, obs, sat.ellipticity)
+    stars = _star_truth(pos, vel, xi, eta, v_true, obs, sat.ellipticity, flattening is not None)
     if metallicity is not None:  # in place: the table keeps its meta
         table, stars["feh_true"] = with_metallicities(table, truth, n_stars, metallicity, seed)
     return MockCatalogue(table=table, truth=truth, stars=stars)
