@@ -3,6 +3,11 @@
 Run (the full size, hours on 2 cores):
     .venv/bin/python benchmarks/sbc_nfw.py --mocks 200 --stars 100 --workers 2
 
+A robustness run (mocks the fit does not assume), e.g.:
+    .venv/bin/python benchmarks/sbc_nfw.py --mocks 20 --name sbc_nfw_flattened \
+        --calibrate-options="--mock-flattening 0.4"
+(benchmarks/robustness.py runs the set and compares them with the default run.)
+
 A tiny version (minutes), to check that it runs, not to judge the calibration:
     .venv/bin/python benchmarks/sbc_nfw.py --mocks 4 --stars 30 --chains 2 --warmup 50 \
         --draws 50 --name sbc_nfw_tiny
@@ -43,6 +48,11 @@ def _args():
     p.add_argument("--spec", default="nfw")
     p.add_argument("--name", default="sbc_nfw")
     p.add_argument("--work", default=None, help="folder for the mocks and fits (kept)")
+    p.add_argument(
+        "--calibrate-options",
+        default="",
+        help="more `halo calibrate` options as one string, e.g. '--mock-flattening 0.4'",
+    )
     return p.parse_args()
 
 
@@ -53,6 +63,7 @@ def main():
     cmd = ["calibrate", a.spec, "--out", str(out), "--mocks", str(a.mocks)]
     cmd += ["--stars", str(a.stars), "--workers", str(a.workers), "--chains", str(a.chains)]
     cmd += ["--warmup", str(a.warmup), "--draws", str(a.draws), "--seed", str(a.seed)]
+    cmd += shlex.split(a.calibrate_options)
     t0 = time.perf_counter()
     res = subprocess.run(
         [sys.executable, "-m", "halo.cli", *cmd], stdout=subprocess.PIPE, text=True

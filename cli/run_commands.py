@@ -264,6 +264,17 @@ FehErrors = Annotated[
     str, typer.Option("--feh-errors", metavar="LO,HI", help="[Fe/H] error range [dex]")
 ]
 
+Flattening = Annotated[
+    float | None,
+    typer.Option(
+        "--flattening",
+        metavar="Q",
+        help="an oblate tracer of intrinsic axis ratio Q, inclined so that its image has the "
+        "satellite's ellipticity (Q <= 1 - e; Gaussian velocities from the axisymmetric Jeans "
+        "equations)",
+    ),
+]
+
 
 def mock_cmd(
     satellite: Satellite,
@@ -283,6 +294,7 @@ def mock_cmd(
     anisotropy: Anisotropy = None,
     feh: Feh = None,
     feh_errors: FehErrors = "0.1,0.3",
+    flattening: Flattening = None,
 ):
     """A mock catalogue with a known truth (written beside it as JSON)."""
     from halo.mock.files import write_mock
@@ -317,6 +329,7 @@ def mock_cmd(
         n_foreground=n_foreground,
         anisotropy=anisotropy,
         metallicity=metallicity_options(feh, feh_errors),
+        flattening=flattening,
     )
     _method_note(method, truth_path)
     typer.echo(format_mock_written(path, truth_path, n_stars, n_foreground))

@@ -11,6 +11,7 @@ from halo.batch.calibration import (
     exceedance_rate,
     interval_coverage,
     ks_uniformity,
+    rank_bias,
     rank_histogram,
     sbc_ranks,
     thin_draws,
@@ -65,6 +66,10 @@ def test_a_calibrated_posterior_gives_uniform_ranks_and_nominal_coverage():
     assert cover[0.68][1] == 0.68 and cover[0.95][1] == 0.94  # ranks 16..83 and 3..96 of 0..99
     for level, (frac, expected, se) in cover.items():
         assert abs(frac - expected) < 3 * se, (level, frac, expected, se)
+    bias, se = rank_bias(ranks, N_DRAWS)
+    # the discrete uniform on {0, ..., L} (scipy.stats.randint) gives the standard error
+    assert se == pytest.approx(stats.randint(0, N_DRAWS + 1).std() / N_DRAWS / N_SIMS**0.5)
+    assert abs(bias) < 3 * se
 
 
 @pytest.mark.parametrize(("shift", "width"), [(0.5, 1.0), (0.0, 0.6), (0.0, 1.6)])
@@ -83,6 +88,9 @@ def test_a_biased_or_mis_sized_posterior_is_rejected(shift, width):
         assert interval_coverage(ranks, N_DRAWS)[0.68][0] > 0.8
     else:  # posterior too high: truths rank low
         assert counts[: N_BINS // 2].sum() > 1.5 * counts[N_BINS // 2 :].sum()
+        bias, se = rank_bias(ranks, N_DRAWS)
+        # the posterior 0.5 sd too high: truths rank low, far beyond the standard error
+        assert bias < -0.1 and bias < -10 * se
 
 
 def test_exceedance_rate_and_its_exact_binomial_interval():

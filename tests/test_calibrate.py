@@ -111,6 +111,9 @@ def test_the_calibration_files_and_ranks(nfw_run):
         for site, key in (("v_sys", "v_sys_kms"), ("f_binary", "f_binary")):
             # the rank recounted: draws below the truth (Talts et al. 2018, Algorithm 1)
             assert e["ranks"][key] == int(np.sum(post[site][idx] < e["truth"][key])), key
+            # where the result sits: the thinned draws' median and sd
+            med, sd = np.median(post[site][idx]), np.std(post[site][idx], ddof=1)
+            assert e["posterior"][key] == {"median": pytest.approx(med), "sd": pytest.approx(sd)}
         truth = json.loads((out / "mocks" / f"{e['name']}.truth.json").read_text())
         assert e["truth"]["v_sys_kms"] == truth["v_sys_kms"]
     q = res["quantities"]["v_sys_kms"]
@@ -121,6 +124,10 @@ def test_the_calibration_files_and_ranks(nfw_run):
     assert q["chi2"]["p_value"] == pytest.approx(stats.chisquare(hist).pvalue, rel=1e-9)
     inside = np.mean((ranks >= 16) & (ranks <= L - 16))  # 68%: lo = floor(0.16 x 100 + 0.5)
     assert q["coverage"]["0.68"]["fraction"] == inside
+    assert q["rank_bias"]["value"] == pytest.approx(ranks.mean() / L - 0.5)
+    z = [(e["posterior"]["v_sys_kms"]["median"] - e["truth"]["v_sys_kms"])
+         / e["posterior"]["v_sys_kms"]["sd"] for e in res["entries"]]  # fmt: skip
+    assert q["z"]["mean"] == pytest.approx(np.mean(z))
     t = Table.read(out / "calibration.ecsv")
     assert len(t) == 3 and list(t["rank_v_sys_kms"]) == [e["ranks"]["v_sys_kms"]
                                                          for e in res["entries"]]  # fmt: skip
@@ -179,6 +186,13 @@ def test_false_dark_matter_of_a_stars_only_calibration(tmp_path):
             # the rank recounted: draws below the truth (Talts et al. 2018, Algorithm 1)
             assert e["parameter_ranks"][site] == int(np.sum(draws < truth)), site
             assert params[site]["ranks"][i] == e["parameter_ranks"][site]
+        # where the result sits: the thinned v_sys draws' median and sd, and the rank bias
+        v = np.asarray(post["posterior"]["v_sys"].values).reshape(-1)[idx]
+        assert e["posterior"]["v_sys_kms"]["median"] == pytest.approx(np.median(v))
+        assert e["posterior"]["v_sys_kms"]["sd"] == pytest.approx(np.std(v, ddof=1))
+    q = res["quantities"]["v_sys_kms"]
+    assert q["rank_bias"]["value"] == pytest.approx(np.mean(q["ranks"]) / L - 0.5)
+    assert "rank bias" in stdout
     assert (
         e["parameter_truth"]["distance"]
         == json.loads((out / "mocks" / f"{e['name']}.truth.json").read_text())["prior_draw"][

@@ -165,3 +165,25 @@ def test_calibrate_s_flattening_reaches_the_mocks_and_the_record(tmp_path, monke
         assert code == 2 and "--mock-flattening" in err and words in err
         assert len(err.splitlines()) == 1 and "Traceback" not in err
         assert not (tmp_path / "o" / "calibration.json").exists()
+
+
+HALO = ["--set", "m200=1e9", "--set", "c200=15"]
+
+
+def test_halo_mock_writes_a_flattened_catalogue_and_refuses_an_impossible_one(tmp_path, capsys):
+    import json
+
+    out = tmp_path / "flat.ecsv"
+    args = ["mock", "demo", "--out", str(out), "--n-stars", "40", "--seed", "2", *HALO]
+    assert main([*args, "--flattening", "0.5"]) == 0
+    truth = json.loads((tmp_path / "flat.ecsv.truth.json").read_text())
+    assert truth["flattening"]["intrinsic_axis_ratio"] == 0.5
+    assert truth["flattening"]["apparent_ellipticity"] == pytest.approx(0.3)
+    capsys.readouterr()
+    bad = tmp_path / "bad.ecsv"
+    code = main(
+        ["mock", "demo", "--out", str(bad), "--n-stars", "40", *HALO, "--flattening", "0.9"]
+    )
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and err.count("\n") == 0 and "--flattening" in err and "(0, 0.7]" in err
+    assert "--mock-flattening" not in err and not bad.exists()

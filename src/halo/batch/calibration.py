@@ -28,6 +28,7 @@ __all__ = [
     "rank_histogram",
     "chi_square_uniformity",
     "ks_uniformity",
+    "rank_bias",
     "interval_coverage",
     "exceedance_rate",
 ]
@@ -117,6 +118,16 @@ def interval_coverage(ranks, n_draws, levels=(0.68, 0.95)):
         se = math.sqrt(expected * (1 - expected) / ranks.size)
         out[level] = (float(inside.mean()), expected, se)
     return out
+
+
+def rank_bias(ranks, n_draws):
+    """(mean of rank / L - 1/2, its standard error under calibration): the shift of the posterior
+    against the truths in posterior quantile, positive when truths rank high (the posterior
+    sits low). Under calibration the rank is uniform on {0, ..., L}, of variance
+    ((L + 1)^2 - 1) / 12 (the discrete uniform distribution, common practice)."""
+    ranks = np.asarray(ranks, dtype=float)
+    se = math.sqrt(((n_draws + 1) ** 2 - 1) / 12.0) / n_draws / math.sqrt(ranks.size)
+    return float(ranks.mean() / n_draws - 0.5), se
 
 
 def exceedance_rate(values, thresholds=(1.0, 3.0), confidence=0.95):

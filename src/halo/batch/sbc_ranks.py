@@ -16,6 +16,7 @@ from halo.batch.calibration import (
     exceedance_rate,
     interval_coverage,
     ks_uniformity,
+    rank_bias,
     rank_histogram,
     sbc_ranks,
     thin_draws,
@@ -111,6 +112,10 @@ def collect_ranks(spec, satellite, truths, records, fits_dir, model, n_keep, bin
             row["ranks"] = {
                 k: int(sbc_ranks([row["truth"][k]], draws[k][None, :])[0]) for k in keys
             }
+            row["posterior"] = {
+                k: {"median": float(np.median(draws[k])), "sd": float(np.std(draws[k], ddof=1))}
+                for k in keys
+            }
             # diagnostics: every sampled parameter's own rank (which one a failed quantity
             # inherits its miscalibration from)
             row["parameter_ranks"] = {
@@ -128,6 +133,7 @@ def _q_stats(ranks, n_keep, n_bins, seed):
     chi2, p_chi2 = chi_square_uniformity(ranks, n_keep, n_bins)
     ks, p_ks = ks_uniformity(ranks, n_keep, seed=seed)
     cov = interval_coverage(ranks, n_keep)
+    bias, bias_se = rank_bias(ranks, n_keep)
     return {
         "n": int(ranks.size),
         "ranks": [int(r) for r in ranks],
@@ -144,6 +150,7 @@ def _q_stats(ranks, n_keep, n_bins, seed):
             f"{lv:g}": {"fraction": f, "expected": e, "standard_error": se}
             for lv, (f, e, se) in cov.items()
         },
+        "rank_bias": {"value": bias, "standard_error": bias_se},
     }
 
 
@@ -157,7 +164,19 @@ def rank_statistics(keys, rows, n_keep, n_bins, seed=0):
         ranks = np.array([r["ranks"][k] for r in done], dtype=int)
         stats = _q_stats(ranks, n_keep, n_bins, seed) if ranks.size else {"n": 0}
         out[k] = {"label": label, "unit": unit, **stats}
+        z = [_z(r, k) for r in done if "posterior" in r]
+        z = np.array([v for v in z if np.isfinite(v)])
+        if z.size:  # (posterior median - truth) / posterior sd: where results move to
+            out[k]["z"] = {
+                "mean": float(z.mean()),
+                "sd": float(z.std(ddof=1)) if z.size > 1 else None,
+            }
     return out
+
+
+def _z(row, key):
+    post = row["posterior"][key]
+    return (post["median"] - row["truth"][key]) / post["sd"] if post["sd"] > 0 else np.nan
 
 
 def parameter_statistics(rows, n_keep, n_bins, seed=0):

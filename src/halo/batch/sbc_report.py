@@ -196,9 +196,11 @@ def format_calibration(result, out_dir):
             continue
         c68, c95 = q["coverage"]["0.68"]["fraction"], q["coverage"]["0.95"]["fraction"]
         flag = "" if q["uniform_at_0.01"] else "  NOT UNIFORM (p <= 0.01)"
+        bias = q["rank_bias"]
         lines.append(
             f"  {q['label']}: chi2 p = {q['chi2']['p_value']:.3g}, KS p = "
-            f"{q['ks']['p_value']:.3g}, coverage 68% {c68:.2f}, 95% {c95:.2f}{flag}"
+            f"{q['ks']['p_value']:.3g}, coverage 68% {c68:.2f}, 95% {c95:.2f}, rank bias "
+            f"{bias['value']:+.3f} +- {bias['standard_error']:.3f}{flag}"
         )
     params = result.get("sampled_parameters") or {}
     if params:

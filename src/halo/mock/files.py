@@ -88,10 +88,13 @@ def write_mock(
     n_foreground=0,
     anisotropy=None,
     metallicity=None,
+    flattening=None,
 ):
     """``halo mock``: draw a mock from a spec at given parameter values and write it.
 
     ``metallicity``: None or a :class:`halo.mock.metallicity.MockMetallicity` (feh, feh_err).
+    ``flattening``: None or the intrinsic axis ratio of an oblate tracer
+    (:func:`halo.mock.catalogue.make_mock`).
 
     Returns (catalogue path, truth path). The truth JSON sits beside the catalogue.
     """
@@ -116,9 +119,11 @@ def write_mock(
             n_foreground=n_foreground,
             anisotropy=anisotropy,
             metallicity=metallicity,
+            flattening=flattening,
         )
     except InputError as exc:  # the library's spelling of the option -> the command's
-        raise InputError(str(exc).replace("method='gaussian'", "--method gaussian")) from None
+        text = str(exc).replace("method='gaussian'", "--method gaussian")
+        raise InputError(text.replace("--mock-flattening", "--flattening")) from None
     truth = truth_record(mock, spec, values)
     truth_path = out.with_suffix(out.suffix + ".truth.json")
     _write_table(mock.table, out, fmt, truth)
