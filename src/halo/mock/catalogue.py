@@ -238,6 +238,24 @@ def _star_truth(pos, vel, xi, eta, v_true, obs, ellipticity, on_sky_ellipse=Fals
     )
 
 
+def _df_physical(choice):
+    return None if choice.df is None else choice.df.is_physical
+
+
+def _sky_phase_space(model, n_stars, rng, method, df_options, allow_unphysical, flattening):
+    """Positions, velocities, the method choice, the flattening truth (or None) and the tangent-
+    plane offsets xi, eta of the members."""
+    sat = model.sat
+    if flattening is None:
+        pos, vel, choice = _phase_space(model, n_stars, rng, method, df_options, allow_unphysical)
+        xi, eta = ellipse_offsets(pos.x, pos.y, sat.ellipticity, sat.position_angle_deg)
+        return pos, vel, choice, None, xi, eta
+    # already elliptical on the sky (x the major axis): rotated to the PA only
+    pos, vel, choice, flat_truth = _flattened_phase_space(model, n_stars, rng, method, flattening)
+    xi, eta = ellipse_offsets(pos.x, pos.y, 0.0, sat.position_angle_deg)
+    return pos, vel, choice, flat_truth, xi, eta
+
+
 def make_mock(
     satellite,
     dark=None,
@@ -330,19 +348,11 @@ def make_mock(
     model = _model(satellite, dark, stellar_mass, anisotropy)
     n_stars, err_range = _checked(method, error_range_kms, n_stars)
     sat = model.sat
-    if seed is None:
-        seed = int(np.random.SeedSequence().entropy)
+    seed = int(np.random.SeedSequence().entropy) if seed is None else seed
     rng = np.random.default_rng(seed)
-    flat_truth = None
-    if flattening is None:
-        pos, vel, choice = _phase_space(model, n_stars, rng, method, df_options, allow_unphysical)
-        xi, eta = ellipse_offsets(pos.x, pos.y, sat.ellipticity, sat.position_angle_deg)
-    else:  # already elliptical on the sky (x the major axis): rotated to the PA only
-        pos, vel, choice, flat_truth = _flattened_phase_space(
-            model, n_stars, rng, method, flattening
-        )
-        xi, eta = ellipse_offsets(pos.x, pos.y, 0.0, sat.position_angle_deg)
-    df_physical = None if choice.df is None else choice.df.is_physical
+    pos, vel, choice, flat_truth, xi, eta = _sky_phase_space(
+        model, n_stars, rng, method, df_options, allow_unphysical, flattening
+    )
     v_true = line_of_sight_velocity(pos, vel)
     ra, dec = sky_coordinates(xi, eta, sat.ra_deg, sat.dec_deg, sat.distance_kpc)
     obs = observe_members(
@@ -356,11 +366,9 @@ def make_mock(
         repeat_fraction=repeat_fraction, binary_fraction=binary_fraction,
         binary_population=binary_population,
     )  # fmt: skip
-    n_binaries = int(obs.is_binary.sum())
-    used = {"method_used": choice.method, "method_reason": choice.reason}
-    truth = {**settings, **used, "n_binaries": n_binaries, **_model_truth(model, df_physical)}
-    if flat_truth is not None:
-        truth["flattening"] = flat_truth
+    truth = {**settings, "method_used": choice.method, "method_reason": choice.reason}
+    truth.update(n_binaries=int(obs.is_binary.sum()), **_model_truth(model, _df_physical(choice)))
+    truth.update({} if flat_truth is None else {"flattening": flat_truth})
     table = _member_table(obs, ra, dec)
     if n_foreground > 0:
         table = with_foreground(
