@@ -4,9 +4,14 @@ import os
 import tempfile
 
 _TMP = tempfile.mkdtemp(prefix="halo-tests-")
+# the user cache folder (halo's compiled programs) is shared by the xdist workers of one run, so
+# that a program one worker compiled is loaded by the other instead of compiled again; a cache
+# entry read while another worker writes it is compiled again (the warning is ignored, pyproject)
+_RUN = os.environ.get("PYTEST_XDIST_TESTRUNUID", "")
+_SHARED = os.path.join(tempfile.gettempdir(), f"halo-tests-run-{_RUN}") if _RUN else _TMP
 # keep library caches out of HOME (matplotlib, astropy, colossus)
 os.environ.setdefault("MPLCONFIGDIR", os.path.join(_TMP, "mpl"))
-os.environ.setdefault("XDG_CACHE_HOME", os.path.join(_TMP, "cache"))
+os.environ.setdefault("XDG_CACHE_HOME", os.path.join(_SHARED, "cache"))
 os.environ.setdefault("XDG_CONFIG_HOME", os.path.join(_TMP, "config"))
 os.environ.setdefault("ASTROPY_CACHE_DIR", os.path.join(_TMP, "astropy-cache"))
 os.environ.setdefault("ASTROPY_CONFIG_DIR", os.path.join(_TMP, "astropy-config"))

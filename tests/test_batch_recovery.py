@@ -59,6 +59,15 @@ class _Killer(threading.Thread):
                 time.sleep(0.2)
 
 
+def _worker_threads_after_prepare():
+    from halo.batch.task import prepare_worker
+
+    prepare_worker(None)
+    tids = [int(t) for t in os.listdir("/proc/self/task")]
+    cores = {tuple(sorted(os.sched_getaffinity(t))) for t in tids}
+    return os.environ.get("XLA_FLAGS", ""), os.environ["HALO_CHAIN_THREADS"], cores
+
+
 def test_a_worker_killed_mid_entry_loses_only_that_attempt(tmp_path):
     paths = write_inputs(tmp_path / "in", ["a"])
     manifest = write_manifest(
@@ -71,10 +80,21 @@ def test_a_worker_killed_mid_entry_loses_only_that_attempt(tmp_path):
         assert not _non_loopback(os.getpid(), listening_only=True)
         for pid in pids.values():
             assert not _non_loopback(pid, listening_only=False), pid
-        # one core per fit: single-threaded XLA, the chains one after the other
-        env = client.run(lambda: (os.environ["XLA_FLAGS"], os.environ["HALO_CHAIN_THREADS"]))
-        for flags, chain_threads in env.values():
-            assert "--xla_cpu_multi_thread_eigen=false" in flags and chain_threads == "1"
+        # one core per fit: each worker pinned to its own core (every thread), the chains one
+        # after the other, and the XLA flags of a single fit (part of the compilation cache key)
+        env = {  # as a task on each worker (get_worker works in tasks, not in client.run)
+            w: client.submit(_worker_threads_after_prepare, workers=[w], pure=False).result()
+            for w in pids
+        }
+        cores = sorted(os.sched_getaffinity(0))
+        pinned = []
+        for flags, chain_threads, affinities in env.values():
+            assert flags == os.environ.get("XLA_FLAGS", "") and chain_threads == "1"
+            # every thread on the same single core
+            assert len(affinities) == 1 and len(next(iter(affinities))) == 1, affinities
+            pinned.append(next(iter(affinities))[0])
+        assert all(c in cores for c in pinned)
+        assert len(set(pinned)) == min(2, len(cores)), pinned
         killer = _Killer(cluster.scheduler_address, pids)
         killer.start()
         code = main(

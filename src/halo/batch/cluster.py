@@ -4,9 +4,11 @@ existing scheduler's address to scale out.
 The local cluster has N worker processes of one thread each, every listener (scheduler, workers,
 nannies, their HTTP status pages) on 127.0.0.1 with a free port: nothing is opened to the
 network, and there is no dashboard beyond those loopback status pages (the dashboard's own
-package is not a dependency). Each worker is told to use one core (the single-threaded XLA CPU
-runtime, one BLAS/OpenMP thread, the chains of a fit on one thread) before it imports JAX, so that
-N workers on N cores do not fight over them.
+package is not a dependency). Each worker uses one core, so that N workers on N cores do not fight
+over them: it is pinned to its own core (every thread of the process, before its first fit; worker
+i gets the i-th core this process may use), with one BLAS/OpenMP thread and the chains of a fit one
+after the other. The XLA flags stay those of a single `halo fit` (they are part of the persistent
+compilation cache's key), so workers load the programs that single fits compiled, and the reverse.
 """
 
 import contextlib
@@ -18,13 +20,19 @@ from distributed.diagnostics.plugin import WorkerPlugin
 
 from halo.core.errors import InputError
 
-__all__ = ["WORKER_ENV", "default_workers", "batch_client", "local_cluster", "LOOPBACK"]
+__all__ = [
+    "WORKER_ENV",
+    "default_workers",
+    "pin_to_core",
+    "batch_client",
+    "local_cluster",
+    "LOOPBACK",
+]
 
 LOOPBACK = "127.0.0.1"
 
 #: environment of every local worker process, set before it imports anything: one core per fit
 WORKER_ENV = {
-    "XLA_FLAGS": "--xla_cpu_multi_thread_eigen=false intra_op_parallelism_threads=1",
     "OMP_NUM_THREADS": "1",
     "OPENBLAS_NUM_THREADS": "1",
     "MKL_NUM_THREADS": "1",
@@ -44,12 +52,30 @@ def default_workers():
 
 
 def _worker_env():
-    """WORKER_ENV, with the user's own XLA_FLAGS kept in front of the single-thread flags."""
+    """WORKER_ENV, with the cores a worker may be pinned to (``HALO_WORKER_CORES``)."""
     env = dict(WORKER_ENV)
-    user = os.environ.get("XLA_FLAGS", "").strip()
-    if user:
-        env["XLA_FLAGS"] = f"{user} {env['XLA_FLAGS']}"
+    try:
+        cores = sorted(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not Linux: no pinning
+        return env
+    env["HALO_WORKER_CORES"] = ",".join(str(c) for c in cores)
     return env
+
+
+def pin_to_core(cores, index):
+    """Pin every thread of this process to core ``cores[index % len(cores)]`` (Linux; threads
+    started later inherit it). Returns the core, or None where affinity cannot be set."""
+    core = cores[index % len(cores)]
+    try:
+        tids = [int(t) for t in os.listdir("/proc/self/task")]
+    except OSError:
+        tids = [0]
+    done = False
+    for tid in tids:
+        with contextlib.suppress(OSError, AttributeError):
+            os.sched_setaffinity(tid, {core})
+            done = True
+    return core if done else None
 
 
 class IgnoreInterrupt(WorkerPlugin):
@@ -64,7 +90,8 @@ class IgnoreInterrupt(WorkerPlugin):
 
 
 def local_cluster(workers):
-    """A LocalCluster of ``workers`` single-threaded processes on loopback (see the module)."""
+    """A LocalCluster of ``workers`` one-thread processes on loopback, each pinned to its own core
+    when it starts a fit (see the module)."""
     from distributed import LocalCluster
 
     return LocalCluster(

@@ -26,14 +26,32 @@ PARTIAL_MARK = ".partial-"
 def prepare_worker(jax_cache):
     """Point this worker's JAX persistent compilation cache at ``jax_cache`` (the folder the
     batch's client uses), so that every worker loads the programs any of them compiled; the
-    chains of a fit run on one thread unless the worker's environment says otherwise (one core
-    per fit)."""
+    chains of a fit run on one thread unless the worker's environment says otherwise, and a local
+    cluster's worker is pinned to its own core (one core per fit, :mod:`halo.batch.cluster`)."""
     os.environ.setdefault("HALO_CHAIN_THREADS", "1")
+    _pin_local_worker()
     if jax_cache:
         os.environ["JAX_COMPILATION_CACHE_DIR"] = str(jax_cache)
     from halo.core.cache import configure_caches
 
     configure_caches()
+
+
+def _pin_local_worker():
+    """Pin a local cluster's worker (``HALO_WORKER_CORES`` in its environment) to core number
+    <worker name> of those cores; a worker of another scheduler is left as its admin set it."""
+    cores = os.environ.get("HALO_WORKER_CORES", "").strip()
+    if not cores:
+        return
+    try:
+        from distributed import get_worker
+
+        index = int(get_worker().name)
+    except (ImportError, ValueError, TypeError):
+        return
+    from halo.batch.cluster import pin_to_core
+
+    pin_to_core([int(c) for c in cores.split(",")], index)
 
 
 def one_line(exc):

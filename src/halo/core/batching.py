@@ -1,14 +1,29 @@
 """One way to evaluate a function per posterior draw: ``jit(vmap(fn))`` in padded chunks.
 
 Every chunk has the same shape, so the function compiles once: the last chunk is padded by
-repeating its last draw and the padding is cut off again. Results come back as numpy arrays.
+repeating its last draw and the padding is cut off again. Fewer draws than a chunk are padded up
+to the next power of two (:func:`chunk_size`), so that a run of 300 draws and one of 320 share a
+program. Results come back as numpy arrays.
 """
 
 import jax
 import jax.numpy as jnp
 import numpy as np
 
-__all__ = ["map_draws"]
+__all__ = ["map_draws", "chunk_size"]
+
+#: the smallest chunk: fewer draws than this are padded up to it
+MIN_CHUNK = 64
+
+
+def chunk_size(n, batch=1000):
+    """Draws per compiled call for ``n`` draws: ``batch``, or for fewer draws the next power of two
+    (at least ``MIN_CHUNK``), so that runs with similar numbers of draws (300 or 320, a thinned
+    posterior of 99) share one compiled program instead of compiling one per count."""
+    batch = max(1, int(batch))
+    if n >= batch:
+        return batch
+    return min(batch, max(MIN_CHUNK, 1 << max(0, int(n) - 1).bit_length()))
 
 
 def map_draws(fn, *args, batch=1000, on_chunk=None, compiled=None):
@@ -30,7 +45,7 @@ def map_draws(fn, *args, batch=1000, on_chunk=None, compiled=None):
     n = int(np.shape(leaves[0])[0])
     if n == 0:
         raise ValueError("map_draws needs at least one draw")
-    batch = max(1, min(int(batch), n))
+    batch = chunk_size(n, batch)
     run = compiled if compiled is not None else jax.jit(jax.vmap(fn))
     chunks = []
     for k in range(0, n, batch):

@@ -1,8 +1,10 @@
 """NUTS on CPU (numpyro) and convergence diagnostics (arviz).
 
-The chains run inside compiled programs (``lax.map`` over chains under ``jit``), one group of
-chains per core on its own thread: on CPU this is several times faster than numpyro's
-Python-driven sequential method (benchmarks/bench_fit.py, benchmarks/bench_chains.py).
+The chains run inside compiled programs (``lax.map`` over one chain under ``jit``): one program
+for every chain and any chain count, as many chains at a time as there are cores, each on its own
+thread. On CPU this is several times faster than numpyro's Python-driven sequential method
+(benchmarks/bench_fit.py, benchmarks/bench_chains.py); chains in lockstep (``vmap``) are slower
+(benchmarks/bench_chain_vmap.py).
 """
 
 import dataclasses
@@ -39,9 +41,9 @@ def chain_threads(n_chains):
 
 
 def _compiled_chain_map(fn):
-    """Run the chains inside compiled programs (``lax.map`` over chains under jit), the chains
-    split into :func:`chain_threads` groups that run at the same time on their own threads
-    (XLA releases the GIL while a program runs), so that every core samples.
+    """Run the chains inside compiled programs (``lax.map`` over one chain under jit), each chain
+    a call of the same program, :func:`chain_threads` of them at the same time on their own
+    threads (XLA releases the GIL while a program runs), so that every core samples.
 
     On CPU one program per group is several times faster than numpyro's Python-driven sequential
     method, and needs no change of the XLA device count. ``fn`` is numpyro's per-chain function
@@ -66,12 +68,14 @@ def _compiled_chain_map(fn):
 
 
 def _in_groups(jitted, extra, map_args):
-    """``jitted(group, *extra)`` on consecutive groups of chains (leading axis of
-    ``map_args``), one thread per group, results joined back in chain order.
+    """``jitted(chain, *extra)`` for every chain (leading axis of ``map_args``) as a group of one,
+    on :func:`chain_threads` threads at a time, results joined back in chain order.
 
-    The programs are traced and compiled here, on the calling thread, before any group runs:
-    numpyro's effect handlers live on one process-wide stack, so two threads must never trace
-    a model at the same time. The threads only run compiled executables.
+    Every chain runs the same program (a map over one chain): 1, 2 or 4 chains, one thread or
+    several (a batch worker that owns one core), all load the one program from the persistent
+    compilation cache instead of compiling one per group size. It is compiled here, on the calling
+    thread, before any chain runs: numpyro's effect handlers live on one process-wide stack, so two
+    threads must never trace a model at the same time. The threads only run the executable.
     """
     import concurrent.futures
 
@@ -79,23 +83,18 @@ def _in_groups(jitted, extra, map_args):
     import jax.numpy as jnp
 
     n = jax.tree.leaves(map_args)[0].shape[0]
+    chains = [jax.tree.map(lambda a, i=i: a[i : i + 1], map_args) for i in range(n)]
+    exe = jitted.lower(chains[0], *extra).compile()
+
+    def one(chain):
+        return jax.block_until_ready(exe(chain, *extra))
+
     k = chain_threads(n)
     if k == 1:
-        return jitted(map_args, *extra)
-    edges = np.linspace(0, n, k + 1).round().astype(int)
-    groups = [jax.tree.map(lambda a, i=i: a[edges[i] : edges[i + 1]], map_args) for i in range(k)]
-    executables = {}
-    for g in groups:
-        size = jax.tree.leaves(g)[0].shape[0]
-        if size not in executables:
-            executables[size] = jitted.lower(g, *extra).compile()
-
-    def one(group):
-        exe = executables[jax.tree.leaves(group)[0].shape[0]]
-        return jax.block_until_ready(exe(group, *extra))
-
-    with concurrent.futures.ThreadPoolExecutor(max_workers=k) as pool:
-        outs = list(pool.map(one, groups))
+        outs = [one(c) for c in chains]
+    else:
+        with concurrent.futures.ThreadPoolExecutor(max_workers=k) as pool:
+            outs = list(pool.map(one, chains))
     return jax.tree.map(lambda *xs: jnp.concatenate(xs, axis=0), *outs)
 
 
