@@ -64,18 +64,15 @@ def _worker_env():
 
 def pin_to_core(cores, index):
     """Pin every thread of this process to core ``cores[index % len(cores)]`` (Linux; threads
-    started later inherit it). Returns the core, or None where affinity cannot be set."""
+    started later inherit it); where affinity cannot be set, nothing changes."""
     core = cores[index % len(cores)]
     try:
         tids = [int(t) for t in os.listdir("/proc/self/task")]
     except OSError:
         tids = [0]
-    done = False
     for tid in tids:
         with contextlib.suppress(OSError, AttributeError):
             os.sched_setaffinity(tid, {core})
-            done = True
-    return core if done else None
 
 
 class IgnoreInterrupt(WorkerPlugin):

@@ -57,17 +57,17 @@ def _compiled_chain_map(fn):
     bound = dict(getattr(fn, "keywords", None) or {})
     if not {"args", "kwargs"} <= bound.keys():  # another numpyro layout: arguments as constants
         compiled = jax.jit(lambda map_args: jax.lax.map(fn, map_args))
-        return lambda map_args: _in_groups(compiled, (), map_args)
+        return lambda map_args: _each_chain(compiled, (), map_args)
     args, kwargs = bound.pop("args"), bound.pop("kwargs")
 
     def chains(map_args, args, kwargs):
         return jax.lax.map(lambda m: fn.func(m, args=args, kwargs=kwargs, **bound), map_args)
 
     compiled = jax.jit(chains)
-    return lambda map_args: _in_groups(compiled, (args, kwargs), map_args)
+    return lambda map_args: _each_chain(compiled, (args, kwargs), map_args)
 
 
-def _in_groups(jitted, extra, map_args):
+def _each_chain(jitted, extra, map_args):
     """``jitted(chain, *extra)`` for every chain (leading axis of ``map_args``) as a group of one,
     on :func:`chain_threads` threads at a time, results joined back in chain order.
 
